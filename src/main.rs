@@ -1,0 +1,38 @@
+//! The `agarium` command line: thin wiring of `agarium-core` and `agarium-scripting`.
+
+mod check;
+mod error;
+mod fsout;
+mod mesh;
+mod plate_args;
+
+use clap::{Parser, Subcommand};
+use error::CliError;
+
+/// Implicit finite-element workbench for chemotaxis–growth models on agar plates.
+#[derive(Parser)]
+#[command(name = "agarium", version, about, long_about = None)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Build a quality triangle mesh of a plate and report on it.
+    Mesh(mesh::MeshArgs),
+    /// Parse and compile a model file and report on its terms.
+    Check(check::CheckArgs),
+}
+
+fn main() {
+    let cli = Cli::parse();
+    let result: Result<(), CliError> = match &cli.command {
+        Command::Mesh(args) => mesh::run(args),
+        Command::Check(args) => check::run(args),
+    };
+    if let Err(err) = result {
+        eprintln!("error: {}", err.message);
+        std::process::exit(err.code);
+    }
+}
