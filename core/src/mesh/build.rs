@@ -1,0 +1,287 @@
+//! Mesh construction: discretised loops and spot seeds → spade's constrained Delaunay
+//! triangulation with Ruppert/Chew-style quality refinement → hole faces dropped → nodes
+//! renumbered by reverse Cuthill–McKee → [`Mesh`].
+
+use super::boundary_index::BoundaryIndex;
+use super::renumber::reverse_cuthill_mckee;
+use super::sizing::{SizeField, Spot};
+use super::{Mesh, MeshDataError};
+use crate::geometry::{GeometryError, Plate, PlateSpec, Point};
+use ndarray::Array2;
+use spade::{AngleLimit, ConstrainedDelaunayTriangulation, Point2, RefinementParameters, Triangulation};
+use std::collections::HashSet;
+
+/// How to mesh a plate.
+#[derive(Clone, Debug, PartialEq)]
+pub struct MeshOptions {
+    /// Target edge length away from refinement spots, in the plate's length unit.
+    pub size: f64,
+    /// Smallest allowed triangle angle in degrees (input corners sharper than this stay sharp).
+    pub min_angle_deg: f64,
+    /// Points near which the mesh is finer, each with its own edge length.
+    pub spots: Vec<Spot>,
+    /// Growth of the edge length per unit distance from a spot.
+    pub grading: f64,
+    /// Most nodes the mesh may have.
+    pub max_nodes: usize,
+}
+
+impl Default for MeshOptions {
+    fn default() -> Self {
+        MeshOptions { size: 1.0, min_angle_deg: 30.0, spots: Vec::new(), grading: 0.25, max_nodes: 2_000_000 }
+    }
+}
+
+impl MeshOptions {
+    /// Target edge length for a largest allowed triangle area (equilateral triangles).
+    pub fn size_for_max_area(area: f64) -> f64 {
+        (4.0 * area / 3f64.sqrt()).sqrt()
+    }
+}
+
+/// Why a mesh could not be built.
+#[derive(Debug, thiserror::Error, PartialEq)]
+pub enum MeshError {
+    /// The plate description is invalid.
+    #[error(transparent)]
+    Geometry(#[from] GeometryError),
+    /// A meshing option is out of range.
+    #[error("{0}")]
+    BadOption(String),
+    /// A refinement spot lies outside the plate.
+    #[error("refinement spot {spot} at ({x}, {y}) lies outside the plate", x = at[0], y = at[1])]
+    SpotOutside {
+        /// One-based spot number.
+        spot: usize,
+        /// Its centre.
+        at: Point,
+    },
+    /// The node budget would be exceeded.
+    #[error("the mesh needs about {estimate} nodes but the node budget is {budget}; use a larger edge length or raise the budget")]
+    BudgetTooSmall {
+        /// Estimated nodes needed.
+        estimate: usize,
+        /// The budget.
+        budget: usize,
+    },
+    /// Refinement stopped at the node budget before meeting the size and angle targets.
+    #[error("refinement reached the node budget of {budget} before meeting the size and angle targets; use a larger edge length, a smaller minimum angle, or raise the budget")]
+    BudgetReached {
+        /// The budget.
+        budget: usize,
+    },
+    /// The triangulation library refused the input.
+    #[error("triangulation failed: {0}")]
+    Triangulation(String),
+    /// The result is not a valid mesh (an internal fault, reported rather than hidden).
+    #[error("internal mesh error: {0}")]
+    Data(#[from] MeshDataError),
+}
+
+/// A mesh together with the plate and size field it was built from.
+#[derive(Clone, Debug)]
+pub struct BuiltMesh {
+    /// The mesh.
+    pub mesh: Mesh,
+    /// The discretised plate.
+    pub plate: Plate,
+    /// The target edge length used.
+    pub sizes: SizeField,
+}
+
+fn check_options(o: &MeshOptions) -> Result<(), MeshError> {
+    let bad = |m: String| Err(MeshError::BadOption(m));
+    if !(o.size.is_finite() && o.size > 0.0) {
+        return bad(format!("edge length must be a positive number, got {}", o.size));
+    }
+    if !(o.min_angle_deg.is_finite() && o.min_angle_deg > 0.0 && o.min_angle_deg <= 34.0) {
+        return bad(format!(
+            "minimum angle must be above 0 and at most 34 degrees (refinement may not end beyond about 33), got {}",
+            o.min_angle_deg
+        ));
+    }
+    if !(o.grading.is_finite() && o.grading >= 0.0) {
+        return bad(format!("grading must be a non-negative number, got {}", o.grading));
+    }
+    if o.max_nodes < 3 {
+        return bad(format!("node budget must be at least 3, got {}", o.max_nodes));
+    }
+    for (k, s) in o.spots.iter().enumerate() {
+        if !(s.size.is_finite() && s.size > 0.0) {
+            return bad(format!("refinement spot {}: edge length must be a positive number, got {}", k + 1, s.size));
+        }
+        if !(s.centre[0].is_finite() && s.centre[1].is_finite()) {
+            return bad(format!("refinement spot {}: coordinates must be finite", k + 1));
+        }
+    }
+    Ok(())
+}
+
+/// Builds a quality mesh of `spec`.
+pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, MeshError> {
+    check_options(options)?;
+    let sizes = SizeField { far: options.size, spots: options.spots.clone(), grading: options.grading };
+    let plate = spec.discretise(&|p| sizes.at(p))?;
+    let index = BoundaryIndex::new(plate.loops());
+    for (k, s) in options.spots.iter().enumerate() {
+        if !index.contains(s.centre) {
+            return Err(MeshError::SpotOutside { spot: k + 1, at: s.centre });
+        }
+    }
+    let estimate = sizes.estimated_nodes(plate.polygon_area());
+    // The estimate ignores spots' overlap with the boundary, so it is only trusted when it
+    // exceeds the budget clearly; refinement itself enforces the exact budget.
+    if estimate > 1.5 * options.max_nodes as f64 {
+        return Err(MeshError::BudgetTooSmall { estimate: estimate.round() as usize, budget: options.max_nodes });
+    }
+
+    let mut vertices: Vec<Point2<f64>> = Vec::new();
+    let mut constraints: Vec<[usize; 2]> = Vec::new();
+    for ring in plate.loops() {
+        let start = vertices.len();
+        let n = ring.len();
+        vertices.extend(ring.iter().map(|p| Point2::new(p[0], p[1])));
+        constraints.extend((0..n).map(|i| [start + i, start + (i + 1) % n]));
+    }
+    // Seeds too close to the boundary would force tiny triangles against it.
+    let seeds = sizes.spot_seeds(&|p, h| index.contains(p) && index.nearest_within(p, 0.6 * h).is_none());
+    vertices.extend(seeds.iter().map(|p| Point2::new(p[0], p[1])));
+    if vertices.len() >= options.max_nodes {
+        return Err(MeshError::BudgetTooSmall { estimate: vertices.len(), budget: options.max_nodes });
+    }
+
+    let mut cdt = ConstrainedDelaunayTriangulation::<Point2<f64>>::bulk_load_cdt(vertices, constraints)
+        .map_err(|e| MeshError::Triangulation(format!("{e:?}")))?;
+    let h_min = sizes.smallest();
+    // Allow triangles somewhat above the equilateral area for the target length: refinement
+    // splits anything larger, and the resulting triangles are smaller on average.
+    let max_area = 3f64.sqrt() / 4.0 * options.size * options.size * AREA_FACTOR;
+    let params = RefinementParameters::<f64>::new()
+        .with_angle_limit(AngleLimit::from_deg(options.min_angle_deg))
+        .with_max_allowed_area(max_area)
+        // Stops endless splitting at input corners sharper than the angle bound.
+        .with_min_required_area(3f64.sqrt() / 4.0 * (0.05 * h_min).powi(2))
+        .exclude_outer_faces(true)
+        .with_max_additional_vertices(options.max_nodes - cdt.num_vertices());
+    let result = cdt.refine(params);
+    if !result.refinement_complete {
+        return Err(MeshError::BudgetReached { budget: options.max_nodes });
+    }
+    let excluded: HashSet<_> = result.excluded_faces.into_iter().collect();
+
+    // Keep inner faces, compact the vertices they use.
+    let mut used = vec![usize::MAX; cdt.num_vertices()];
+    let mut coords: Vec<[f64; 2]> = Vec::new();
+    let mut triangles = Vec::with_capacity(cdt.num_inner_faces());
+    for face in cdt.inner_faces() {
+        if excluded.contains(&face.fix()) {
+            continue;
+        }
+        let mut tri = [0usize; 3];
+        for (slot, v) in tri.iter_mut().zip(face.vertices()) {
+            let i = v.fix().index();
+            if used[i] == usize::MAX {
+                used[i] = coords.len();
+                let p = v.position();
+                coords.push([p.x, p.y]);
+            }
+            *slot = used[i];
+        }
+        triangles.push(tri);
+    }
+    drop(cdt);
+
+    // Renumber by reverse Cuthill–McKee on the triangle adjacency.
+    let n = coords.len();
+    let mut pairs: Vec<[usize; 2]> = Vec::with_capacity(3 * triangles.len());
+    for t in &triangles {
+        for k in 0..3 {
+            let (a, b) = (t[k], t[(k + 1) % 3]);
+            if a < b {
+                pairs.push([a, b]);
+            } else {
+                pairs.push([b, a]);
+            }
+        }
+    }
+    pairs.sort_unstable();
+    pairs.dedup();
+    let order = reverse_cuthill_mckee(n, &pairs);
+    let mut new_of = vec![0usize; n];
+    for (new, &old) in order.iter().enumerate() {
+        new_of[old] = new;
+    }
+    let mut nodes = Array2::zeros((n, 2));
+    for (old, p) in coords.iter().enumerate() {
+        nodes[[new_of[old], 0]] = p[0];
+        nodes[[new_of[old], 1]] = p[1];
+    }
+    for t in triangles.iter_mut() {
+        for v in t.iter_mut() {
+            *v = new_of[*v];
+        }
+    }
+    triangles.sort_unstable_by_key(|t| *t.iter().min().unwrap_or(&0));
+    let mesh = Mesh::from_parts(nodes, triangles, &|mid| index.nearest_loop(mid))?;
+    Ok(BuiltMesh { mesh, plate, sizes })
+}
+
+/// Ratio of the largest allowed triangle area to the equilateral area of the target length.
+/// Measured on disks: 1.5 gives a mean edge length within 2% of the target and no boundary
+/// segment split by refinement (1.0 gave edges 18% short and split a fifth of the boundary).
+const AREA_FACTOR: f64 = 1.5;
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::geometry::Shape;
+
+    fn disk(r: f64) -> PlateSpec {
+        PlateSpec { outer: Shape::Circle { centre: [0.0, 0.0], radius: r }, holes: vec![], cuts: vec![] }
+    }
+
+    #[test]
+    fn disk_mesh_basic_properties() {
+        let built = build_mesh(&disk(1.0), &MeshOptions { size: 0.05, ..Default::default() }).unwrap();
+        let m = &built.mesh;
+        let mean_edge: f64 = m
+            .edges
+            .iter()
+            .map(|e| {
+                let (a, b) = (m.node(e[0]), m.node(e[1]));
+                (a[0] - b[0]).hypot(a[1] - b[1])
+            })
+            .sum::<f64>()
+            / m.edges.len() as f64;
+        let off_circle = m
+            .boundary
+            .iter()
+            .filter(|e| {
+                let p = m.node(e.nodes[0]);
+                (p[0].hypot(p[1]) - 1.0).abs() > 1e-9
+            })
+            .count();
+        eprintln!(
+            "nodes {} tris {} mean edge {mean_edge:.4} boundary {} off-circle {off_circle}",
+            m.num_nodes(),
+            m.triangles.len(),
+            m.boundary.len()
+        );
+        assert!(m.edge_weights.iter().all(|w| *w >= -1e-12));
+    }
+
+    #[test]
+    fn option_errors() {
+        let bad = |o: MeshOptions| build_mesh(&disk(1.0), &o).unwrap_err();
+        assert!(matches!(bad(MeshOptions { size: 0.0, ..Default::default() }), MeshError::BadOption(_)));
+        assert!(matches!(bad(MeshOptions { min_angle_deg: 40.0, ..Default::default() }), MeshError::BadOption(_)));
+        assert!(matches!(
+            bad(MeshOptions { size: 0.001, max_nodes: 1000, ..Default::default() }),
+            MeshError::BudgetTooSmall { .. }
+        ));
+        assert!(matches!(
+            bad(MeshOptions { spots: vec![Spot { centre: [3.0, 0.0], size: 0.01 }], ..Default::default() }),
+            MeshError::SpotOutside { spot: 1, .. }
+        ));
+    }
+}

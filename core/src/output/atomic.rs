@@ -1,0 +1,79 @@
+//! Write-then-rename, so readers never see a half-written file and failures leave nothing.
+
+use super::OutputError;
+use std::io::Write;
+use std::path::Path;
+
+fn io_err(path: &Path, e: impl std::fmt::Display) -> OutputError {
+    OutputError::Io { path: path.to_path_buf(), reason: e.to_string() }
+}
+
+fn dir_of(path: &Path) -> &Path {
+    match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    }
+}
+
+/// Writes `path` through `fill`, which receives a writer to a temporary file in the same
+/// directory; the temporary file replaces `path` only when `fill` and the flush succeed.
+pub fn write_atomically(
+    path: &Path,
+    fill: impl FnOnce(&mut dyn Write) -> Result<(), OutputError>,
+) -> Result<(), OutputError> {
+    let mut tmp = tempfile::Builder::new()
+        .prefix(".agarium-")
+        .suffix(".part")
+        .tempfile_in(dir_of(path))
+        .map_err(|e| io_err(path, e))?;
+    {
+        let mut buffered = std::io::BufWriter::new(tmp.as_file_mut());
+        fill(&mut buffered)?;
+        buffered.flush().map_err(|e| io_err(path, e))?;
+    }
+    tmp.as_file().sync_all().map_err(|e| io_err(path, e))?;
+    tmp.persist(path).map_err(|e| io_err(path, e.error))?;
+    Ok(())
+}
+
+/// Like [`write_atomically`] for writers that insist on a path: `fill` gets the path of a
+/// temporary file with the same extension as `path`.
+pub fn write_atomically_via_path(
+    path: &Path,
+    fill: impl FnOnce(&Path) -> Result<(), OutputError>,
+) -> Result<(), OutputError> {
+    let suffix = path.extension().map(|e| format!(".{}", e.to_string_lossy())).unwrap_or_default();
+    let tmp = tempfile::Builder::new()
+        .prefix(".agarium-")
+        .suffix(&suffix)
+        .tempfile_in(dir_of(path))
+        .map_err(|e| io_err(path, e))?;
+    fill(tmp.path())?;
+    tmp.persist(path).map_err(|e| io_err(path, e.error))?;
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn failure_leaves_old_file_and_no_temporaries() {
+        let dir = tempfile::tempdir().unwrap();
+        let target = dir.path().join("out.txt");
+        write_atomically(&target, |w| w.write_all(b"first").map_err(|e| io_err(Path::new("x"), e))).unwrap();
+        let err = write_atomically(&target, |w| {
+            w.write_all(b"partial").map_err(|e| io_err(Path::new("x"), e))?;
+            Err(OutputError::Encode { path: "x".into(), reason: "boom".into() })
+        });
+        assert!(err.is_err());
+        assert_eq!(std::fs::read_to_string(&target).unwrap(), "first");
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 1);
+    }
+
+    #[test]
+    fn missing_directory_is_an_error() {
+        let err = write_atomically(Path::new("/nonexistent-dir-agarium/x.vtu"), |_| Ok(())).unwrap_err();
+        assert!(err.to_string().contains("/nonexistent-dir-agarium/x.vtu"));
+    }
+}
