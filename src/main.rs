@@ -2,7 +2,6 @@
 
 mod check;
 mod error;
-mod fsout;
 mod mesh;
 mod plate_args;
 
