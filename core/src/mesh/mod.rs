@@ -26,6 +26,9 @@ pub struct BoundaryEdge {
     pub loop_id: usize,
 }
 
+/// Edge weights in `(-ROUND_OFF_WEIGHT, 0)` are round-off of a zero weight.
+const ROUND_OFF_WEIGHT: f64 = 1e-12;
+
 /// A P1 triangle mesh with everything the edge-based schemes need.
 #[derive(Clone, Debug)]
 pub struct Mesh {
@@ -129,6 +132,13 @@ impl Mesh {
                 count += 1;
             }
             edges.push([a, b]);
+            // Cocircular nodes (Delaunay ties) give a weight of exactly zero in exact
+            // arithmetic; round-off can leave -1e-17 there, which would spoil the sign pattern
+            // the positivity-preserving schemes rely on. Weights are dimensionless cotangent
+            // sums of order one, so an absolute tolerance is meaningful.
+            if weight < 0.0 && weight > -ROUND_OFF_WEIGHT {
+                weight = 0.0;
+            }
             edge_weights.push(weight);
             if count == 1 {
                 // Orient so the third node (inside the plate) is on the left.
