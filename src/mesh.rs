@@ -43,6 +43,7 @@ pub fn run(args: &MeshArgs) -> Result<(), CliError> {
         check_extension(p, "png", "--png")?;
     }
     let spec = args.plate.spec()?;
+    spec.check_numbers().map_err(CliError::input)?;
     let options = args.meshing.options(&spec)?;
     let built = build_mesh(&spec, &options).map_err(|e| match e {
         MeshError::Data(_) | MeshError::Triangulation(_) => CliError::failure(e),
