@@ -137,7 +137,11 @@ pub fn check_shapes(
         if got == expected {
             Ok(())
         } else {
-            Err(KernelError::Length { what, expected, got })
+            Err(KernelError::Length {
+                what,
+                expected,
+                got,
+            })
         }
     };
     same("y", input.y.len(), n)?;
@@ -261,7 +265,13 @@ where
         let n_out = self.n_outputs.min(CLOSURE_MAX_SPECIES);
         for i in 0..n {
             self.gather(input, i, &mut u);
-            (self.value)(&u[..self.n_inputs], input.x[i], input.y[i], input.t, &mut o[..n_out]);
+            (self.value)(
+                &u[..self.n_inputs],
+                input.x[i],
+                input.y[i],
+                input.t,
+                &mut o[..n_out],
+            );
             for (k, v) in o[..n_out].iter().enumerate() {
                 out[k * n + i] = *v;
             }
@@ -284,7 +294,14 @@ where
         let mut j = vec![0.0; ni * no];
         for i in 0..n {
             self.gather(input, i, &mut u);
-            (self.jacobian)(&u[..ni], input.x[i], input.y[i], input.t, &mut o[..no], &mut j);
+            (self.jacobian)(
+                &u[..ni],
+                input.x[i],
+                input.y[i],
+                input.t,
+                &mut o[..no],
+                &mut j,
+            );
             for k in 0..no {
                 out[k * n + i] = o[k];
                 for s in 0..ni {
@@ -326,11 +343,17 @@ mod tests {
         let u = [0.5, 0.25, 0.0];
         let v = [1.0, 2.0, 3.0];
         let xy = [0.0; 3];
-        let input = KernelInput { species: &[&u, &v], x: &xy, y: &xy, t: 0.0 };
+        let input = KernelInput {
+            species: &[&u, &v],
+            x: &xy,
+            y: &xy,
+            t: 0.0,
+        };
         let mut out = vec![0.0; 6];
         let mut jac = vec![0.0; 12];
         let mut s = Scratch::new();
-        k.eval_with_jacobian(&input, &mut out, &mut jac, &mut s).unwrap();
+        k.eval_with_jacobian(&input, &mut out, &mut jac, &mut s)
+            .unwrap();
         assert_eq!(out[0], 0.5 * 0.5 - 0.5);
         assert_eq!(out[3 + 1], 0.25 * 2.0);
         // ∂f0/∂v at node 1 = -u.
@@ -347,11 +370,27 @@ mod tests {
         let k = logistic();
         let u = [0.5, 0.25];
         let xy = [0.0; 2];
-        let input = KernelInput { species: &[&u], x: &xy, y: &xy, t: 0.0 };
+        let input = KernelInput {
+            species: &[&u],
+            x: &xy,
+            y: &xy,
+            t: 0.0,
+        };
         let mut out = vec![0.0; 4];
         let err = k.eval(&input, &mut out, &mut Scratch::new()).unwrap_err();
-        assert_eq!(err, KernelError::SpeciesCount { expected: 2, got: 1 });
-        let input = KernelInput { species: &[&u, &u], x: &xy, y: &xy, t: 0.0 };
+        assert_eq!(
+            err,
+            KernelError::SpeciesCount {
+                expected: 2,
+                got: 1
+            }
+        );
+        let input = KernelInput {
+            species: &[&u, &u],
+            x: &xy,
+            y: &xy,
+            t: 0.0,
+        };
         let mut short = vec![0.0; 3];
         assert!(matches!(
             k.eval(&input, &mut short, &mut Scratch::new()),
