@@ -31,6 +31,15 @@ pub struct Model {
     signatures: HashMap<String, Vec<String>>,
 }
 
+impl std::fmt::Debug for Model {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Model")
+            .field("file", &self.file)
+            .field("decl", &self.decl)
+            .finish_non_exhaustive()
+    }
+}
+
 /// One species of a compiled model.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Species {
