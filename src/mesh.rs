@@ -30,7 +30,21 @@ pub struct MeshArgs {
 fn check_extension(path: &std::path::Path, ext: &str, flag: &str) -> Result<(), CliError> {
     match path.extension().and_then(|e| e.to_str()) {
         Some(e) if e.eq_ignore_ascii_case(ext) => Ok(()),
-        _ => Err(CliError::input(format!("{flag} {}: the file name must end in .{ext}", path.display()))),
+        _ => Err(CliError::input(format!(
+            "{flag} {}: the file name must end in .{ext}",
+            path.display()
+        ))),
+    }
+}
+
+/// Creates the directory an output file goes into (only once the mesh exists, so a refused
+/// input creates nothing).
+fn ensure_parent(path: &std::path::Path) -> Result<(), CliError> {
+    match path.parent() {
+        Some(dir) if !dir.as_os_str().is_empty() => std::fs::create_dir_all(dir).map_err(|e| {
+            CliError::failure(format!("{}: cannot create directory: {e}", dir.display()))
+        }),
+        _ => Ok(()),
     }
 }
 
@@ -52,9 +66,18 @@ pub fn run(args: &MeshArgs) -> Result<(), CliError> {
     let mesh = &built.mesh;
     let report = QualityReport::of_built(&built);
 
+    for path in args.out.iter().chain(args.png.iter()) {
+        ensure_parent(path)?;
+    }
     if let Some(path) = &args.out {
-        let loops: Vec<f64> = mesh.node_loops().iter().map(|t| t.map_or(-1.0, |k| k as f64)).collect();
-        let target: Vec<f64> = (0..mesh.num_nodes()).map(|i| built.sizes.at(mesh.node(i))).collect();
+        let loops: Vec<f64> = mesh
+            .node_loops()
+            .iter()
+            .map(|t| t.map_or(-1.0, |k| k as f64))
+            .collect();
+        let target: Vec<f64> = (0..mesh.num_nodes())
+            .map(|i| built.sizes.at(mesh.node(i)))
+            .collect();
         let min_angle: Vec<f64> = (0..mesh.triangles.len())
             .map(|t| mesh.triangle_angles(t).into_iter().fold(180.0, f64::min))
             .collect();
@@ -62,19 +85,41 @@ pub fn run(args: &MeshArgs) -> Result<(), CliError> {
             path,
             mesh,
             &[
-                Field { name: "node_area", values: &mesh.node_areas },
-                Field { name: "boundary_loop", values: &loops },
-                Field { name: "target_size", values: &target },
+                Field {
+                    name: "node_area",
+                    values: &mesh.node_areas,
+                },
+                Field {
+                    name: "boundary_loop",
+                    values: &loops,
+                },
+                Field {
+                    name: "target_size",
+                    values: &target,
+                },
             ],
             &[
-                Field { name: "triangle_area", values: &mesh.triangle_areas },
-                Field { name: "min_angle", values: &min_angle },
+                Field {
+                    name: "triangle_area",
+                    values: &mesh.triangle_areas,
+                },
+                Field {
+                    name: "min_angle",
+                    values: &min_angle,
+                },
             ],
         )
         .map_err(CliError::failure)?;
     }
     if let Some(path) = &args.png {
-        write_mesh_png(path, mesh, PngOptions { pixels: args.png_pixels }).map_err(CliError::failure)?;
+        write_mesh_png(
+            path,
+            mesh,
+            PngOptions {
+                pixels: args.png_pixels,
+            },
+        )
+        .map_err(CliError::failure)?;
     }
 
     if args.json {
@@ -82,7 +127,10 @@ pub fn run(args: &MeshArgs) -> Result<(), CliError> {
         if let Some(obj) = value.as_object_mut() {
             obj.insert("unit".into(), args.plate.unit.clone().into());
         }
-        println!("{}", serde_json::to_string_pretty(&value).map_err(CliError::failure)?);
+        println!(
+            "{}",
+            serde_json::to_string_pretty(&value).map_err(CliError::failure)?
+        );
     } else {
         print!("{}", report.table(&args.plate.unit));
         if let Some(p) = &args.out {

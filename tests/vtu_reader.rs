@@ -37,7 +37,10 @@ print(json.dumps({
 
 fn python_with_readers() -> Option<String> {
     let python = std::env::var("AGARIUM_PYTHON").unwrap_or_else(|_| "python3".into());
-    let ok = Command::new(&python).args(["-c", "import vtk, meshio"]).output().map(|o| o.status.success());
+    let ok = Command::new(&python)
+        .args(["-c", "import vtk, meshio"])
+        .output()
+        .map(|o| o.status.success());
     match ok {
         Ok(true) => Some(python),
         _ => {
@@ -57,18 +60,46 @@ fn mesh(dir: &Path, args: &[&str]) -> serde_json::Value {
     let mut all = vec!["mesh"];
     all.extend(args);
     all.extend(["-o", "m.vtu", "--json"]);
-    let out = Command::new(env!("CARGO_BIN_EXE_agarium")).args(&all).current_dir(dir).output().unwrap();
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let out = Command::new(env!("CARGO_BIN_EXE_agarium"))
+        .args(&all)
+        .current_dir(dir)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     serde_json::from_slice(&out.stdout).unwrap()
 }
 
 #[test]
 fn independent_readers_agree_with_the_report() {
-    let Some(python) = python_with_readers() else { return };
+    let Some(python) = python_with_readers() else {
+        return;
+    };
     let dir = tempfile::tempdir().unwrap();
-    let report = mesh(dir.path(), &["--plate", "annulus:20,5", "--hole", "circle:2@12,0", "--size", "1"]);
-    let out = Command::new(&python).args(["-c", READER, "m.vtu"]).current_dir(dir.path()).output().unwrap();
-    assert!(out.status.success(), "reader failed: {}", String::from_utf8_lossy(&out.stderr));
+    let report = mesh(
+        dir.path(),
+        &[
+            "--plate",
+            "annulus:20,5",
+            "--hole",
+            "circle:2@12,0",
+            "--size",
+            "1",
+        ],
+    );
+    let out = Command::new(&python)
+        .args(["-c", READER, "m.vtu"])
+        .current_dir(dir.path())
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "reader failed: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
     let got: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let nodes = report["nodes"].as_u64().unwrap();
     let tris = report["triangles"].as_u64().unwrap();
@@ -82,6 +113,10 @@ fn independent_readers_agree_with_the_report() {
     assert!(got["node_area_min"].as_f64().unwrap() > 0.0);
     assert!((got["node_area_sum"].as_f64().unwrap() - area).abs() < 1e-9 * area);
     assert!((got["triangle_area_sum"].as_f64().unwrap() - area).abs() < 1e-9 * area);
-    assert_eq!(got["loop_max"].as_f64(), Some(2.0), "outer, annulus hole and one more hole");
+    assert_eq!(
+        got["loop_max"].as_f64(),
+        Some(2.0),
+        "outer, annulus hole and one more hole"
+    );
     assert!(got["meshio_node_area_max"].as_f64().unwrap() > got["node_area_min"].as_f64().unwrap());
 }

@@ -39,7 +39,10 @@ fn case() -> impl Strategy<Value = Case> {
                 Just(n),
                 prop::collection::vec(-1.0f64..1.0, n),
                 prop::collection::vec(0.0f64..1.0, n),
-                prop::collection::vec((0.0f64..2.0 * PI, 0.0f64..4.5, 0.4f64..1.2, any::<bool>()), 0..4),
+                prop::collection::vec(
+                    (0.0f64..2.0 * PI, 0.0f64..4.5, 0.4f64..1.2, any::<bool>()),
+                    0..4,
+                ),
                 0.4f64..1.2,
                 20.0f64..30.0,
                 prop::option::of((0.0f64..2.0 * PI, 0.0f64..5.0)),
@@ -51,18 +54,41 @@ fn case() -> impl Strategy<Value = Case> {
             for (a, r, s, square) in holes {
                 let c = [r * a.cos(), r * a.sin()];
                 // Keep holes apart from each other (random overlap is tested elsewhere).
-                if placed.iter().all(|(d, t)| (c[0] - d[0]).hypot(c[1] - d[1]) > 1.5 * (s + t) + 0.5) {
+                if placed
+                    .iter()
+                    .all(|(d, t)| (c[0] - d[0]).hypot(c[1] - d[1]) > 1.5 * (s + t) + 0.5)
+                {
                     placed.push((c, s));
                     shapes.push(if square {
-                        Shape::Rectangle { centre: c, width: 1.4 * s, height: 1.4 * s }
+                        Shape::Rectangle {
+                            centre: c,
+                            width: 1.4 * s,
+                            height: 1.4 * s,
+                        }
                     } else {
-                        Shape::Circle { centre: c, radius: s }
+                        Shape::Circle {
+                            centre: c,
+                            radius: s,
+                        }
                     });
                 }
             }
-            let spot = spot.map(|(a, r)| Spot { centre: [r * a.cos(), r * a.sin()], size: size / 6.0 });
-            let spot = spot.filter(|s| placed.iter().all(|(c, t)| (s.centre[0] - c[0]).hypot(s.centre[1] - c[1]) > 1.5 * t));
-            Case { outer: star(n, &jitter, &radii), holes: shapes, size, min_angle, spot }
+            let spot = spot.map(|(a, r)| Spot {
+                centre: [r * a.cos(), r * a.sin()],
+                size: size / 6.0,
+            });
+            let spot = spot.filter(|s| {
+                placed
+                    .iter()
+                    .all(|(c, t)| (s.centre[0] - c[0]).hypot(s.centre[1] - c[1]) > 1.5 * t)
+            });
+            Case {
+                outer: star(n, &jitter, &radii),
+                holes: shapes,
+                size,
+                min_angle,
+                spot,
+            }
         })
 }
 

@@ -45,8 +45,16 @@ impl Cut {
                 }
                 Ok(())
             }
-            Cut::Wedge { apex, from_deg, to_deg } => {
-                if !(apex[0].is_finite() && apex[1].is_finite() && from_deg.is_finite() && to_deg.is_finite()) {
+            Cut::Wedge {
+                apex,
+                from_deg,
+                to_deg,
+            } => {
+                if !(apex[0].is_finite()
+                    && apex[1].is_finite()
+                    && from_deg.is_finite()
+                    && to_deg.is_finite())
+                {
                     return Err("wedge numbers must be finite".into());
                 }
                 let span = wedge_span(*from_deg, *to_deg);
@@ -79,7 +87,10 @@ impl Cut {
         }
         let centre = [0.5 * (lo[0] + hi[0]), 0.5 * (lo[1] + hi[1])];
         let diag = dist(lo, hi);
-        let plate = Polygon::new(to_line_string(outer), holes.iter().map(|r| to_line_string(r)).collect());
+        let plate = Polygon::new(
+            to_line_string(outer),
+            holes.iter().map(|r| to_line_string(r)).collect(),
+        );
         let result = match self {
             Cut::HalfPlane { normal, offset } => {
                 let len = normal[0].hypot(normal[1]);
@@ -99,12 +110,22 @@ impl Cut {
                 let kept = vec![
                     [p0[0] - big * d[0], p0[1] - big * d[1]],
                     [p0[0] + big * d[0], p0[1] + big * d[1]],
-                    [p0[0] + big * d[0] - big * n[0], p0[1] + big * d[1] - big * n[1]],
-                    [p0[0] - big * d[0] - big * n[0], p0[1] - big * d[1] - big * n[1]],
+                    [
+                        p0[0] + big * d[0] - big * n[0],
+                        p0[1] + big * d[1] - big * n[1],
+                    ],
+                    [
+                        p0[0] - big * d[0] - big * n[0],
+                        p0[1] - big * d[1] - big * n[1],
+                    ],
                 ];
                 plate.intersection(&Polygon::new(to_line_string(&kept), vec![]))
             }
-            Cut::Wedge { apex, from_deg, to_deg } => {
+            Cut::Wedge {
+                apex,
+                from_deg,
+                to_deg,
+            } => {
                 let span = wedge_span(*from_deg, *to_deg);
                 let big = 2.0 * (diag + dist(*apex, centre));
                 let steps = (span / 5.0).ceil().max(2.0) as usize;
@@ -116,7 +137,11 @@ impl Cut {
                 plate.difference(&Polygon::new(to_line_string(&wedge), vec![]))
             }
         };
-        let pieces: Vec<&Polygon<f64>> = result.0.iter().filter(|p| geo::Area::unsigned_area(*p) > 0.0).collect();
+        let pieces: Vec<&Polygon<f64>> = result
+            .0
+            .iter()
+            .filter(|p| geo::Area::unsigned_area(*p) > 0.0)
+            .collect();
         match pieces.len() {
             0 => return Err(GeometryError::CutRemovesAll { cut: k }),
             1 => {}
@@ -124,7 +149,11 @@ impl Cut {
         }
         let piece = pieces[0];
         let outer = respace(&from_line_string(piece.exterior()), h);
-        let holes = piece.interiors().iter().map(|r| respace(&from_line_string(r), h)).collect();
+        let holes = piece
+            .interiors()
+            .iter()
+            .map(|r| respace(&from_line_string(r), h))
+            .collect();
         Ok((outer, holes))
     }
 }
@@ -169,7 +198,9 @@ fn respace(ring: &Ring, h: &dyn Fn(Point) -> f64) -> Ring {
                     let (a, b, c) = (pts[(k + n - 1) % n], pts[k], pts[(k + 1) % n]);
                     let u = [b[0] - a[0], b[1] - a[1]];
                     let v = [c[0] - b[0], c[1] - b[1]];
-                    (u[0] * v[1] - u[1] * v[0]).atan2(u[0] * v[0] + u[1] * v[1]).abs()
+                    (u[0] * v[1] - u[1] * v[0])
+                        .atan2(u[0] * v[0] + u[1] * v[1])
+                        .abs()
                 };
                 let drop = if turn(i) < turn(j) { i } else { j };
                 pts.remove(drop);
@@ -191,7 +222,10 @@ mod tests {
     use std::f64::consts::PI;
 
     fn disk(r: f64) -> Shape {
-        Shape::Circle { centre: [0.0, 0.0], radius: r }
+        Shape::Circle {
+            centre: [0.0, 0.0],
+            radius: r,
+        }
     }
 
     #[test]
@@ -201,7 +235,10 @@ mod tests {
         let spec = PlateSpec {
             outer: disk(r),
             holes: vec![],
-            cuts: vec![Cut::HalfPlane { normal: [1.0, 0.0], offset: d }],
+            cuts: vec![Cut::HalfPlane {
+                normal: [1.0, 0.0],
+                offset: d,
+            }],
         };
         let plate = spec.discretise(&|_| 0.02).unwrap();
         let theta = 2.0 * (d / r).acos();
@@ -221,7 +258,11 @@ mod tests {
         let spec = PlateSpec {
             outer: disk(1.0),
             holes: vec![],
-            cuts: vec![Cut::Wedge { apex: [0.0, 0.0], from_deg: 0.0, to_deg: 90.0 }],
+            cuts: vec![Cut::Wedge {
+                apex: [0.0, 0.0],
+                from_deg: 0.0,
+                to_deg: 90.0,
+            }],
         };
         let plate = spec.discretise(&|_| 0.01).unwrap();
         let exact = 0.75 * PI;
@@ -233,19 +274,45 @@ mod tests {
         let all = PlateSpec {
             outer: disk(1.0),
             holes: vec![],
-            cuts: vec![Cut::HalfPlane { normal: [1.0, 0.0], offset: -5.0 }],
+            cuts: vec![Cut::HalfPlane {
+                normal: [1.0, 0.0],
+                offset: -5.0,
+            }],
         };
-        assert_eq!(all.discretise(&|_| 0.1).unwrap_err(), GeometryError::CutRemovesAll { cut: 1 });
+        assert_eq!(
+            all.discretise(&|_| 0.1).unwrap_err(),
+            GeometryError::CutRemovesAll { cut: 1 }
+        );
         // A thin bar across a dumbbell-like rectangle pair: a wedge splitting a U-shape.
         let u = Shape::Polygon {
-            points: vec![[0.0, 0.0], [3.0, 0.0], [3.0, 2.0], [2.0, 2.0], [2.0, 1.0], [1.0, 1.0], [1.0, 2.0], [0.0, 2.0]],
+            points: vec![
+                [0.0, 0.0],
+                [3.0, 0.0],
+                [3.0, 2.0],
+                [2.0, 2.0],
+                [2.0, 1.0],
+                [1.0, 1.0],
+                [1.0, 2.0],
+                [0.0, 2.0],
+            ],
         };
-        let split = PlateSpec { outer: u, holes: vec![], cuts: vec![Cut::HalfPlane { normal: [0.0, -1.0], offset: -1.5 }] };
+        let split = PlateSpec {
+            outer: u,
+            holes: vec![],
+            cuts: vec![Cut::HalfPlane {
+                normal: [0.0, -1.0],
+                offset: -1.5,
+            }],
+        };
         assert_eq!(
             split.discretise(&|_| 0.1).unwrap_err(),
             GeometryError::CutSplits { cut: 1, pieces: 2 }
         );
-        let bad = Cut::Wedge { apex: [0.0, 0.0], from_deg: 10.0, to_deg: 10.0 };
+        let bad = Cut::Wedge {
+            apex: [0.0, 0.0],
+            from_deg: 10.0,
+            to_deg: 10.0,
+        };
         assert!(bad.check_numbers().is_err());
     }
 }

@@ -34,7 +34,11 @@ fn sample_closed_curve(curve: &dyn Fn(f64) -> Point, h: &dyn Fn(Point) -> f64) -
             j += 1;
         }
         let span = cum[j + 1] - cum[j];
-        let frac = if span > 0.0 { (target - cum[j]) / span } else { 0.0 };
+        let frac = if span > 0.0 {
+            (target - cum[j]) / span
+        } else {
+            0.0
+        };
         ring.push(curve((j as f64 + frac) / fine as f64));
     }
     ring
@@ -68,7 +72,11 @@ pub fn subdivide_polygon(corners: &[Point], h: &dyn Fn(Point) -> f64) -> Ring {
                 j += 1;
             }
             let span = cum[j + 1] - cum[j];
-            let frac = if span > 0.0 { (target - cum[j]) / span } else { 0.0 };
+            let frac = if span > 0.0 {
+                (target - cum[j]) / span
+            } else {
+                0.0
+            };
             let t = (j as f64 + frac) / samples as f64;
             ring.push([a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1])]);
         }
@@ -82,18 +90,36 @@ pub fn shape_rings(shape: &Shape, h: &dyn Fn(Point) -> f64) -> Vec<Ring> {
         Shape::Circle { centre, radius } => {
             let (c, r) = (*centre, *radius);
             vec![sample_closed_curve(
-                &|t| [c[0] + r * (2.0 * PI * t).cos(), c[1] + r * (2.0 * PI * t).sin()],
+                &|t| {
+                    [
+                        c[0] + r * (2.0 * PI * t).cos(),
+                        c[1] + r * (2.0 * PI * t).sin(),
+                    ]
+                },
                 h,
             )]
         }
-        Shape::Ellipse { centre, semi_x, semi_y } => {
+        Shape::Ellipse {
+            centre,
+            semi_x,
+            semi_y,
+        } => {
             let (c, a, b) = (*centre, *semi_x, *semi_y);
             vec![sample_closed_curve(
-                &|t| [c[0] + a * (2.0 * PI * t).cos(), c[1] + b * (2.0 * PI * t).sin()],
+                &|t| {
+                    [
+                        c[0] + a * (2.0 * PI * t).cos(),
+                        c[1] + b * (2.0 * PI * t).sin(),
+                    ]
+                },
                 h,
             )]
         }
-        Shape::Rectangle { centre, width, height } => {
+        Shape::Rectangle {
+            centre,
+            width,
+            height,
+        } => {
             let (c, w, hh) = (*centre, 0.5 * width, 0.5 * height);
             let corners = [
                 [c[0] - w, c[1] - hh],
@@ -103,9 +129,25 @@ pub fn shape_rings(shape: &Shape, h: &dyn Fn(Point) -> f64) -> Vec<Ring> {
             ];
             vec![subdivide_polygon(&corners, h)]
         }
-        Shape::Annulus { centre, outer, inner } => {
-            let mut rings = shape_rings(&Shape::Circle { centre: *centre, radius: *outer }, h);
-            rings.extend(shape_rings(&Shape::Circle { centre: *centre, radius: *inner }, h));
+        Shape::Annulus {
+            centre,
+            outer,
+            inner,
+        } => {
+            let mut rings = shape_rings(
+                &Shape::Circle {
+                    centre: *centre,
+                    radius: *outer,
+                },
+                h,
+            );
+            rings.extend(shape_rings(
+                &Shape::Circle {
+                    centre: *centre,
+                    radius: *inner,
+                },
+                h,
+            ));
             rings
         }
         Shape::Polygon { points } => {
@@ -125,8 +167,14 @@ mod tests {
 
     #[test]
     fn circle_nodes_lie_on_the_circle_at_the_target_spacing() {
-        let ring = shape_rings(&Shape::Circle { centre: [1.0, 2.0], radius: 3.0 }, &|_| 0.1)
-            .remove(0);
+        let ring = shape_rings(
+            &Shape::Circle {
+                centre: [1.0, 2.0],
+                radius: 3.0,
+            },
+            &|_| 0.1,
+        )
+        .remove(0);
         // 2π·3 / 0.1 ≈ 188.5 segments.
         assert_eq!(ring.len(), 188);
         for p in &ring {

@@ -163,22 +163,27 @@ impl Plate {
 
     /// Area enclosed by the discretised loops (outer minus holes).
     pub fn polygon_area(&self) -> f64 {
-        signed_area(&self.outer).abs() - self.holes.iter().map(|h| signed_area(h).abs()).sum::<f64>()
+        signed_area(&self.outer).abs()
+            - self.holes.iter().map(|h| signed_area(h).abs()).sum::<f64>()
     }
 }
 
 impl PlateSpec {
     /// Checks the description's numbers without discretising.
     pub fn check_numbers(&self) -> Result<(), GeometryError> {
-        self.outer.check_numbers("plate").map_err(GeometryError::BadShape)?;
+        self.outer
+            .check_numbers("plate")
+            .map_err(GeometryError::BadShape)?;
         for (k, hole) in self.holes.iter().enumerate() {
             if matches!(hole, Shape::Annulus { .. }) {
                 return Err(GeometryError::AnnulusAsHole { hole: k + 1 });
             }
-            hole.check_numbers(&format!("hole {}", k + 1)).map_err(GeometryError::BadShape)?;
+            hole.check_numbers(&format!("hole {}", k + 1))
+                .map_err(GeometryError::BadShape)?;
         }
         for (k, c) in self.cuts.iter().enumerate() {
-            c.check_numbers().map_err(|reason| GeometryError::BadCut { cut: k + 1, reason })?;
+            c.check_numbers()
+                .map_err(|reason| GeometryError::BadCut { cut: k + 1, reason })?;
         }
         Ok(())
     }
@@ -209,7 +214,12 @@ impl PlateSpec {
             orient_rings(&mut outer, &mut holes);
             check_plate(&outer, &holes)?;
         }
-        Ok(Plate { outer, holes, exact_area, exact_perimeter })
+        Ok(Plate {
+            outer,
+            holes,
+            exact_area,
+            exact_perimeter,
+        })
     }
 }
 
@@ -232,7 +242,11 @@ mod tests {
     #[test]
     fn annulus_discretises_into_two_loops_with_exact_area() {
         let spec = PlateSpec {
-            outer: Shape::Annulus { centre: [0.0, 0.0], outer: 2.0, inner: 1.0 },
+            outer: Shape::Annulus {
+                centre: [0.0, 0.0],
+                outer: 2.0,
+                inner: 1.0,
+            },
             holes: vec![],
             cuts: vec![],
         };
@@ -246,8 +260,16 @@ mod tests {
 
     #[test]
     fn corner_angle_of_a_square_with_square_hole() {
-        let sq = |h: f64| Shape::Rectangle { centre: [0.0, 0.0], width: h, height: h };
-        let spec = PlateSpec { outer: sq(4.0), holes: vec![sq(1.0)], cuts: vec![] };
+        let sq = |h: f64| Shape::Rectangle {
+            centre: [0.0, 0.0],
+            width: h,
+            height: h,
+        };
+        let spec = PlateSpec {
+            outer: sq(4.0),
+            holes: vec![sq(1.0)],
+            cuts: vec![],
+        };
         let plate = spec.discretise(&|_| 0.5).unwrap();
         // Outer corners are 90° from inside; the hole's corners are 270° seen from the plate.
         assert!((plate.smallest_corner_angle() - 90.0).abs() < 1e-9);
@@ -256,10 +278,20 @@ mod tests {
     #[test]
     fn annulus_hole_is_refused() {
         let spec = PlateSpec {
-            outer: Shape::Circle { centre: [0.0, 0.0], radius: 5.0 },
-            holes: vec![Shape::Annulus { centre: [0.0, 0.0], outer: 2.0, inner: 1.0 }],
+            outer: Shape::Circle {
+                centre: [0.0, 0.0],
+                radius: 5.0,
+            },
+            holes: vec![Shape::Annulus {
+                centre: [0.0, 0.0],
+                outer: 2.0,
+                inner: 1.0,
+            }],
             cuts: vec![],
         };
-        assert_eq!(spec.check_numbers(), Err(GeometryError::AnnulusAsHole { hole: 1 }));
+        assert_eq!(
+            spec.check_numbers(),
+            Err(GeometryError::AnnulusAsHole { hole: 1 })
+        );
     }
 }

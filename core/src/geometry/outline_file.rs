@@ -41,7 +41,13 @@ pub fn parse_outline(text: &str, path: &Path) -> Result<(Shape, Vec<Shape>), Geo
             .filter(|f| !f.is_empty())
             .collect();
         if fields.len() != 2 {
-            return Err(syntax(line_no, format!("expected two numbers 'x y', found {} fields in '{content}'", fields.len())));
+            return Err(syntax(
+                line_no,
+                format!(
+                    "expected two numbers 'x y', found {} fields in '{content}'",
+                    fields.len()
+                ),
+            ));
         }
         let mut xy = [0.0; 2];
         for (d, f) in fields.iter().enumerate() {
@@ -68,7 +74,11 @@ pub fn parse_outline(text: &str, path: &Path) -> Result<(Shape, Vec<Shape>), Geo
             pts.pop();
         }
         let shape = Shape::Polygon { points: pts };
-        let role = if k == 0 { "outer loop".to_string() } else { format!("hole {k}") };
+        let role = if k == 0 {
+            "outer loop".to_string()
+        } else {
+            format!("hole {k}")
+        };
         shape
             .check_numbers(&role)
             .map_err(|reason| syntax(line, format!("loop starting here: {reason}")))?;
@@ -86,7 +96,12 @@ mod tests {
     fn parses_loops_comments_and_commas() {
         let text = "# plate\n0 0\n4,0\n4 4\n0 4\n0 0\n\n1 1\n2 1 # well\n2 2\n";
         let (outer, holes) = parse_outline(text, Path::new("o.txt")).unwrap();
-        assert_eq!(outer, Shape::Polygon { points: vec![[0.0, 0.0], [4.0, 0.0], [4.0, 4.0], [0.0, 4.0]] });
+        assert_eq!(
+            outer,
+            Shape::Polygon {
+                points: vec![[0.0, 0.0], [4.0, 0.0], [4.0, 4.0], [0.0, 4.0]]
+            }
+        );
         assert_eq!(holes.len(), 1);
     }
 
@@ -97,7 +112,10 @@ mod tests {
         let err = parse_outline("0 0\n1 0 2\n", Path::new("o.txt")).unwrap_err();
         assert!(err.to_string().starts_with("o.txt:2: expected two numbers"));
         let err = parse_outline("0 0\n1 0\n\n5 5\n6 6\n7 7\n", Path::new("o.txt")).unwrap_err();
-        assert!(err.to_string().starts_with("o.txt:1: loop starting here"), "{err}");
+        assert!(
+            err.to_string().starts_with("o.txt:1: loop starting here"),
+            "{err}"
+        );
         let err = parse_outline("# nothing\n", Path::new("o.txt")).unwrap_err();
         assert!(err.to_string().contains("no points"));
     }

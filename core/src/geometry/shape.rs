@@ -98,14 +98,20 @@ impl Shape {
             if v.is_finite() && v > 0.0 {
                 Ok(())
             } else {
-                Err(format!("{role}: {} {name} must be a positive number, got {v}", self.kind()))
+                Err(format!(
+                    "{role}: {} {name} must be a positive number, got {v}",
+                    self.kind()
+                ))
             }
         };
         let finite_point = |p: &Point| -> Result<(), String> {
             if p[0].is_finite() && p[1].is_finite() {
                 Ok(())
             } else {
-                Err(format!("{role}: coordinates must be finite, got ({}, {})", p[0], p[1]))
+                Err(format!(
+                    "{role}: coordinates must be finite, got ({}, {})",
+                    p[0], p[1]
+                ))
             }
         };
         match self {
@@ -113,17 +119,29 @@ impl Shape {
                 finite_point(centre)?;
                 positive("radius", *radius)
             }
-            Shape::Ellipse { centre, semi_x, semi_y } => {
+            Shape::Ellipse {
+                centre,
+                semi_x,
+                semi_y,
+            } => {
                 finite_point(centre)?;
                 positive("semi-axis x", *semi_x)?;
                 positive("semi-axis y", *semi_y)
             }
-            Shape::Rectangle { centre, width, height } => {
+            Shape::Rectangle {
+                centre,
+                width,
+                height,
+            } => {
                 finite_point(centre)?;
                 positive("width", *width)?;
                 positive("height", *height)
             }
-            Shape::Annulus { centre, outer, inner } => {
+            Shape::Annulus {
+                centre,
+                outer,
+                inner,
+            } => {
                 finite_point(centre)?;
                 positive("outer radius", *outer)?;
                 positive("inner radius", *inner)?;
@@ -223,11 +241,23 @@ mod tests {
 
     #[test]
     fn polygon_numbers_are_checked() {
-        let p = Shape::Polygon { points: vec![[0.0, 0.0], [1.0, 0.0], [0.0, 0.0]] };
-        assert!(p.check_numbers("plate").unwrap_err().contains("three distinct"));
-        let c = Shape::Circle { centre: [0.0, 0.0], radius: -1.0 };
+        let p = Shape::Polygon {
+            points: vec![[0.0, 0.0], [1.0, 0.0], [0.0, 0.0]],
+        };
+        assert!(p
+            .check_numbers("plate")
+            .unwrap_err()
+            .contains("three distinct"));
+        let c = Shape::Circle {
+            centre: [0.0, 0.0],
+            radius: -1.0,
+        };
         assert!(c.check_numbers("plate").unwrap_err().contains("positive"));
-        let a = Shape::Annulus { centre: [0.0, 0.0], outer: 1.0, inner: 2.0 };
+        let a = Shape::Annulus {
+            centre: [0.0, 0.0],
+            outer: 1.0,
+            inner: 2.0,
+        };
         assert!(a.check_numbers("plate").is_err());
     }
 }

@@ -29,11 +29,21 @@ fn orient(a: Point, b: Point, c: Point) -> f64 {
 
 /// Whether closed segments ab and cd share a point (touching counts).
 fn segments_meet(a: Point, b: Point, c: Point, d: Point) -> bool {
-    let (o1, o2, o3, o4) = (orient(a, b, c), orient(a, b, d), orient(c, d, a), orient(c, d, b));
+    let (o1, o2, o3, o4) = (
+        orient(a, b, c),
+        orient(a, b, d),
+        orient(c, d, a),
+        orient(c, d, b),
+    );
     let within = |p: Point, q: Point, r: Point| {
-        r[0] >= p[0].min(q[0]) && r[0] <= p[0].max(q[0]) && r[1] >= p[1].min(q[1]) && r[1] <= p[1].max(q[1])
+        r[0] >= p[0].min(q[0])
+            && r[0] <= p[0].max(q[0])
+            && r[1] >= p[1].min(q[1])
+            && r[1] <= p[1].max(q[1])
     };
-    if ((o1 > 0.0 && o2 < 0.0) || (o1 < 0.0 && o2 > 0.0)) && ((o3 > 0.0 && o4 < 0.0) || (o3 < 0.0 && o4 > 0.0)) {
+    if ((o1 > 0.0 && o2 < 0.0) || (o1 < 0.0 && o2 > 0.0))
+        && ((o3 > 0.0 && o4 < 0.0) || (o3 < 0.0 && o4 > 0.0))
+    {
         return true;
     }
     (o1 == 0.0 && within(a, b, c))
@@ -75,7 +85,12 @@ fn first_crossing(rings: &[&Ring]) -> Option<(usize, usize, Point)> {
     for (r, ring) in rings.iter().enumerate() {
         let n = ring.len();
         for i in 0..n {
-            segs.push(Seg { role_index: r, seg_index: i, a: ring[i], b: ring[(i + 1) % n] });
+            segs.push(Seg {
+                role_index: r,
+                seg_index: i,
+                a: ring[i],
+                b: ring[(i + 1) % n],
+            });
         }
     }
     segs.sort_by(|s, t| s.a[0].min(s.b[0]).total_cmp(&t.a[0].min(t.b[0])));
@@ -97,7 +112,8 @@ fn first_crossing(rings: &[&Ring]) -> Option<(usize, usize, Point)> {
                     // each other (collinear overlap).
                     let (p, q) = if (x + 1) % n == y { (s, t) } else { (t, s) };
                     let turn = orient(p.a, p.b, q.b);
-                    let back = (p.b[0] - p.a[0]) * (q.b[0] - q.a[0]) + (p.b[1] - p.a[1]) * (q.b[1] - q.a[1]);
+                    let back = (p.b[0] - p.a[0]) * (q.b[0] - q.a[0])
+                        + (p.b[1] - p.a[1]) * (q.b[1] - q.a[1]);
                     if turn == 0.0 && back < 0.0 {
                         return Some((s.role_index, t.role_index, p.b));
                     }
@@ -118,21 +134,37 @@ fn first_crossing(rings: &[&Ring]) -> Option<(usize, usize, Point)> {
 pub fn check_plate(outer: &Ring, holes: &[Ring]) -> Result<(), GeometryError> {
     let mut rings: Vec<&Ring> = vec![outer];
     rings.extend(holes.iter());
-    let role = |i: usize| if i == 0 { LoopRole::Outer } else { LoopRole::Hole(i - 1) };
+    let role = |i: usize| {
+        if i == 0 {
+            LoopRole::Outer
+        } else {
+            LoopRole::Hole(i - 1)
+        }
+    };
     if let Some((r, s, at)) = first_crossing(&rings) {
         return Err(if r == s {
             GeometryError::SelfIntersection { role: role(r), at }
         } else {
-            GeometryError::LoopsCross { first: role(r.min(s)), second: role(r.max(s)), at }
+            GeometryError::LoopsCross {
+                first: role(r.min(s)),
+                second: role(r.max(s)),
+                at,
+            }
         });
     }
     for (k, hole) in holes.iter().enumerate() {
         if !point_in_ring(hole[0], outer) {
-            return Err(GeometryError::HoleOutside { hole: k + 1, at: hole[0] });
+            return Err(GeometryError::HoleOutside {
+                hole: k + 1,
+                at: hole[0],
+            });
         }
         for (j, other) in holes.iter().enumerate() {
             if j != k && point_in_ring(hole[0], other) {
-                return Err(GeometryError::HoleInHole { inner: k + 1, outer: j + 1 });
+                return Err(GeometryError::HoleInHole {
+                    inner: k + 1,
+                    outer: j + 1,
+                });
             }
         }
     }
@@ -144,13 +176,21 @@ mod tests {
     use super::*;
 
     fn square(c: Point, h: f64) -> Ring {
-        vec![[c[0] - h, c[1] - h], [c[0] + h, c[1] - h], [c[0] + h, c[1] + h], [c[0] - h, c[1] + h]]
+        vec![
+            [c[0] - h, c[1] - h],
+            [c[0] + h, c[1] - h],
+            [c[0] + h, c[1] + h],
+            [c[0] - h, c[1] + h],
+        ]
     }
 
     #[test]
     fn bow_tie_is_self_intersecting() {
         let bow = vec![[0.0, 0.0], [1.0, 1.0], [1.0, 0.0], [0.0, 1.0]];
-        assert!(matches!(check_plate(&bow, &[]), Err(GeometryError::SelfIntersection { .. })));
+        assert!(matches!(
+            check_plate(&bow, &[]),
+            Err(GeometryError::SelfIntersection { .. })
+        ));
     }
 
     #[test]
@@ -163,11 +203,19 @@ mod tests {
         ));
         assert!(matches!(
             check_plate(&outer, &[square([9.5, 0.0], 1.0)]),
-            Err(GeometryError::LoopsCross { first: LoopRole::Outer, second: LoopRole::Hole(0), .. })
+            Err(GeometryError::LoopsCross {
+                first: LoopRole::Outer,
+                second: LoopRole::Hole(0),
+                ..
+            })
         ));
         assert!(matches!(
             check_plate(&outer, &[square([0.0, 0.0], 1.0), square([1.5, 0.0], 1.0)]),
-            Err(GeometryError::LoopsCross { first: LoopRole::Hole(0), second: LoopRole::Hole(1), .. })
+            Err(GeometryError::LoopsCross {
+                first: LoopRole::Hole(0),
+                second: LoopRole::Hole(1),
+                ..
+            })
         ));
         assert!(matches!(
             check_plate(&outer, &[square([0.0, 0.0], 3.0), square([0.0, 0.0], 1.0)]),

@@ -16,7 +16,11 @@ pub struct BoundaryIndex {
 fn seg_distance(p: Point, a: Point, b: Point) -> f64 {
     let (dx, dy) = (b[0] - a[0], b[1] - a[1]);
     let len2 = dx * dx + dy * dy;
-    let t = if len2 > 0.0 { (((p[0] - a[0]) * dx + (p[1] - a[1]) * dy) / len2).clamp(0.0, 1.0) } else { 0.0 };
+    let t = if len2 > 0.0 {
+        (((p[0] - a[0]) * dx + (p[1] - a[1]) * dy) / len2).clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
     (p[0] - a[0] - t * dx).hypot(p[1] - a[1] - t * dy)
 }
 
@@ -43,7 +47,14 @@ impl BoundaryIndex {
         let cell = ((w + h) / (segs.len() as f64).max(1.0) * 2.0).max(w.max(h) / 4096.0);
         let cols = (w / cell).ceil() as usize + 1;
         let rows = (h / cell).ceil() as usize + 1;
-        let mut index = BoundaryIndex { segs, origin: lo, cell, cols, rows, cells: vec![Vec::new(); cols * rows] };
+        let mut index = BoundaryIndex {
+            segs,
+            origin: lo,
+            cell,
+            cols,
+            rows,
+            cells: vec![Vec::new(); cols * rows],
+        };
         for (s, &(a, b, _)) in index.segs.iter().enumerate() {
             let (c0, r0) = index.cell_of([a[0].min(b[0]), a[1].min(b[1])]);
             let (c1, r1) = index.cell_of([a[0].max(b[0]), a[1].max(b[1])]);
@@ -57,8 +68,12 @@ impl BoundaryIndex {
     }
 
     fn cell_of(&self, p: Point) -> (usize, usize) {
-        let c = ((p[0] - self.origin[0]) / self.cell).floor().clamp(0.0, (self.cols - 1) as f64) as usize;
-        let r = ((p[1] - self.origin[1]) / self.cell).floor().clamp(0.0, (self.rows - 1) as f64) as usize;
+        let c = ((p[0] - self.origin[0]) / self.cell)
+            .floor()
+            .clamp(0.0, (self.cols - 1) as f64) as usize;
+        let r = ((p[1] - self.origin[1]) / self.cell)
+            .floor()
+            .clamp(0.0, (self.rows - 1) as f64) as usize;
         (c, r)
     }
 
@@ -129,12 +144,28 @@ mod tests {
 
     #[test]
     fn contains_agrees_with_plain_ray_casting() {
-        let outer = shape_rings(&Shape::Circle { centre: [0.0, 0.0], radius: 1.0 }, &|_| 0.05).remove(0);
-        let hole = shape_rings(&Shape::Circle { centre: [0.3, 0.1], radius: 0.3 }, &|_| 0.05).remove(0);
+        let outer = shape_rings(
+            &Shape::Circle {
+                centre: [0.0, 0.0],
+                radius: 1.0,
+            },
+            &|_| 0.05,
+        )
+        .remove(0);
+        let hole = shape_rings(
+            &Shape::Circle {
+                centre: [0.3, 0.1],
+                radius: 0.3,
+            },
+            &|_| 0.05,
+        )
+        .remove(0);
         let index = BoundaryIndex::new([&outer, &hole].into_iter());
         let mut state = 12345u64;
         let mut rnd = || {
-            state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            state = state
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
             (state >> 11) as f64 / (1u64 << 53) as f64 * 2.4 - 1.2
         };
         for _ in 0..5000 {

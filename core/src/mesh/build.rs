@@ -8,7 +8,9 @@ use super::sizing::{SizeField, Spot};
 use super::{Mesh, MeshDataError};
 use crate::geometry::{GeometryError, Plate, PlateSpec, Point};
 use ndarray::Array2;
-use spade::{AngleLimit, ConstrainedDelaunayTriangulation, Point2, RefinementParameters, Triangulation};
+use spade::{
+    AngleLimit, ConstrainedDelaunayTriangulation, Point2, RefinementParameters, Triangulation,
+};
 use std::collections::HashSet;
 
 /// How to mesh a plate.
@@ -28,7 +30,13 @@ pub struct MeshOptions {
 
 impl Default for MeshOptions {
     fn default() -> Self {
-        MeshOptions { size: 1.0, min_angle_deg: 30.0, spots: Vec::new(), grading: 0.25, max_nodes: 2_000_000 }
+        MeshOptions {
+            size: 1.0,
+            min_angle_deg: 30.0,
+            spots: Vec::new(),
+            grading: 0.25,
+            max_nodes: 2_000_000,
+        }
     }
 }
 
@@ -92,7 +100,10 @@ pub struct BuiltMesh {
 fn check_options(o: &MeshOptions) -> Result<(), MeshError> {
     let bad = |m: String| Err(MeshError::BadOption(m));
     if !(o.size.is_finite() && o.size > 0.0) {
-        return bad(format!("edge length must be a positive number, got {}", o.size));
+        return bad(format!(
+            "edge length must be a positive number, got {}",
+            o.size
+        ));
     }
     if !(o.min_angle_deg.is_finite() && o.min_angle_deg > 0.0 && o.min_angle_deg <= 34.0) {
         return bad(format!(
@@ -101,17 +112,30 @@ fn check_options(o: &MeshOptions) -> Result<(), MeshError> {
         ));
     }
     if !(o.grading.is_finite() && o.grading >= 0.0) {
-        return bad(format!("grading must be a non-negative number, got {}", o.grading));
+        return bad(format!(
+            "grading must be a non-negative number, got {}",
+            o.grading
+        ));
     }
     if o.max_nodes < 3 {
-        return bad(format!("node budget must be at least 3, got {}", o.max_nodes));
+        return bad(format!(
+            "node budget must be at least 3, got {}",
+            o.max_nodes
+        ));
     }
     for (k, s) in o.spots.iter().enumerate() {
         if !(s.size.is_finite() && s.size > 0.0) {
-            return bad(format!("refinement spot {}: edge length must be a positive number, got {}", k + 1, s.size));
+            return bad(format!(
+                "refinement spot {}: edge length must be a positive number, got {}",
+                k + 1,
+                s.size
+            ));
         }
         if !(s.centre[0].is_finite() && s.centre[1].is_finite()) {
-            return bad(format!("refinement spot {}: coordinates must be finite", k + 1));
+            return bad(format!(
+                "refinement spot {}: coordinates must be finite",
+                k + 1
+            ));
         }
     }
     Ok(())
@@ -120,19 +144,29 @@ fn check_options(o: &MeshOptions) -> Result<(), MeshError> {
 /// Builds a quality mesh of `spec`.
 pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, MeshError> {
     check_options(options)?;
-    let sizes = SizeField { far: options.size, spots: options.spots.clone(), grading: options.grading };
+    let sizes = SizeField {
+        far: options.size,
+        spots: options.spots.clone(),
+        grading: options.grading,
+    };
     let plate = spec.discretise(&|p| sizes.at(p))?;
     let index = BoundaryIndex::new(plate.loops());
     for (k, s) in options.spots.iter().enumerate() {
         if !index.contains(s.centre) {
-            return Err(MeshError::SpotOutside { spot: k + 1, at: s.centre });
+            return Err(MeshError::SpotOutside {
+                spot: k + 1,
+                at: s.centre,
+            });
         }
     }
     let estimate = sizes.estimated_nodes(plate.polygon_area());
     // The estimate ignores spots' overlap with the boundary, so it is only trusted when it
     // exceeds the budget clearly; refinement itself enforces the exact budget.
     if estimate > 1.5 * options.max_nodes as f64 {
-        return Err(MeshError::BudgetTooSmall { estimate: estimate.round() as usize, budget: options.max_nodes });
+        return Err(MeshError::BudgetTooSmall {
+            estimate: estimate.round() as usize,
+            budget: options.max_nodes,
+        });
     }
 
     let mut vertices: Vec<Point2<f64>> = Vec::new();
@@ -144,14 +178,19 @@ pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, 
         constraints.extend((0..n).map(|i| [start + i, start + (i + 1) % n]));
     }
     // Seeds too close to the boundary would force tiny triangles against it.
-    let seeds = sizes.spot_seeds(&|p, h| index.contains(p) && index.nearest_within(p, 0.6 * h).is_none());
+    let seeds =
+        sizes.spot_seeds(&|p, h| index.contains(p) && index.nearest_within(p, 0.6 * h).is_none());
     vertices.extend(seeds.iter().map(|p| Point2::new(p[0], p[1])));
     if vertices.len() >= options.max_nodes {
-        return Err(MeshError::BudgetTooSmall { estimate: vertices.len(), budget: options.max_nodes });
+        return Err(MeshError::BudgetTooSmall {
+            estimate: vertices.len(),
+            budget: options.max_nodes,
+        });
     }
 
-    let mut cdt = ConstrainedDelaunayTriangulation::<Point2<f64>>::bulk_load_cdt(vertices, constraints)
-        .map_err(|e| MeshError::Triangulation(format!("{e:?}")))?;
+    let mut cdt =
+        ConstrainedDelaunayTriangulation::<Point2<f64>>::bulk_load_cdt(vertices, constraints)
+            .map_err(|e| MeshError::Triangulation(format!("{e:?}")))?;
     let h_min = sizes.smallest();
     // Allow triangles somewhat above the equilateral area for the target length: refinement
     // splits anything larger, and the resulting triangles are smaller on average.
@@ -165,7 +204,9 @@ pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, 
         .with_max_additional_vertices(options.max_nodes - cdt.num_vertices());
     let result = cdt.refine(params);
     if !result.refinement_complete {
-        return Err(MeshError::BudgetReached { budget: options.max_nodes });
+        return Err(MeshError::BudgetReached {
+            budget: options.max_nodes,
+        });
     }
     let excluded: HashSet<_> = result.excluded_faces.into_iter().collect();
 
@@ -237,12 +278,26 @@ mod tests {
     use crate::geometry::Shape;
 
     fn disk(r: f64) -> PlateSpec {
-        PlateSpec { outer: Shape::Circle { centre: [0.0, 0.0], radius: r }, holes: vec![], cuts: vec![] }
+        PlateSpec {
+            outer: Shape::Circle {
+                centre: [0.0, 0.0],
+                radius: r,
+            },
+            holes: vec![],
+            cuts: vec![],
+        }
     }
 
     #[test]
     fn disk_mesh_basic_properties() {
-        let built = build_mesh(&disk(1.0), &MeshOptions { size: 0.05, ..Default::default() }).unwrap();
+        let built = build_mesh(
+            &disk(1.0),
+            &MeshOptions {
+                size: 0.05,
+                ..Default::default()
+            },
+        )
+        .unwrap();
         let m = &built.mesh;
         let mean_edge: f64 = m
             .edges
@@ -273,14 +328,36 @@ mod tests {
     #[test]
     fn option_errors() {
         let bad = |o: MeshOptions| build_mesh(&disk(1.0), &o).unwrap_err();
-        assert!(matches!(bad(MeshOptions { size: 0.0, ..Default::default() }), MeshError::BadOption(_)));
-        assert!(matches!(bad(MeshOptions { min_angle_deg: 40.0, ..Default::default() }), MeshError::BadOption(_)));
         assert!(matches!(
-            bad(MeshOptions { size: 0.001, max_nodes: 1000, ..Default::default() }),
+            bad(MeshOptions {
+                size: 0.0,
+                ..Default::default()
+            }),
+            MeshError::BadOption(_)
+        ));
+        assert!(matches!(
+            bad(MeshOptions {
+                min_angle_deg: 40.0,
+                ..Default::default()
+            }),
+            MeshError::BadOption(_)
+        ));
+        assert!(matches!(
+            bad(MeshOptions {
+                size: 0.001,
+                max_nodes: 1000,
+                ..Default::default()
+            }),
             MeshError::BudgetTooSmall { .. }
         ));
         assert!(matches!(
-            bad(MeshOptions { spots: vec![Spot { centre: [3.0, 0.0], size: 0.01 }], ..Default::default() }),
+            bad(MeshOptions {
+                spots: vec![Spot {
+                    centre: [3.0, 0.0],
+                    size: 0.01
+                }],
+                ..Default::default()
+            }),
             MeshError::SpotOutside { spot: 1, .. }
         ));
     }

@@ -8,8 +8,8 @@ mod renumber;
 mod sizing;
 
 pub use boundary_index::BoundaryIndex;
-pub use build::{build_mesh, MeshError, MeshOptions};
 pub use build::BuiltMesh;
+pub use build::{build_mesh, MeshError, MeshOptions};
 pub use quality::QualityReport;
 pub use renumber::reverse_cuthill_mckee;
 pub use sizing::{SizeField, Spot};
@@ -96,7 +96,11 @@ impl Mesh {
         let mut sides: Vec<(usize, usize, f64, usize)> = Vec::with_capacity(3 * triangles.len());
         for (t, tri) in triangles.iter_mut().enumerate() {
             if let Some(&bad) = tri.iter().find(|&&v| v >= n) {
-                return Err(MeshDataError::NodeOutOfRange { triangle: t, node: bad, nodes: n });
+                return Err(MeshDataError::NodeOutOfRange {
+                    triangle: t,
+                    node: bad,
+                    nodes: n,
+                });
             }
             let (a, b, c) = (pt(tri[0]), pt(tri[1]), pt(tri[2]));
             let twice = (b[0] - a[0]) * (c[1] - a[1]) - (b[1] - a[1]) * (c[0] - a[0]);
@@ -143,14 +147,26 @@ impl Mesh {
             if count == 1 {
                 // Orient so the third node (inside the plate) is on the left.
                 let (pa, pb, po) = (pt(a), pt(b), pt(o));
-                let left = (pb[0] - pa[0]) * (po[1] - pa[1]) - (pb[1] - pa[1]) * (po[0] - pa[0]) > 0.0;
+                let left =
+                    (pb[0] - pa[0]) * (po[1] - pa[1]) - (pb[1] - pa[1]) * (po[0] - pa[0]) > 0.0;
                 let nodes = if left { [a, b] } else { [b, a] };
                 let mid = [(pa[0] + pb[0]) * 0.5, (pa[1] + pb[1]) * 0.5];
-                boundary.push(BoundaryEdge { nodes, loop_id: loop_of(mid) });
+                boundary.push(BoundaryEdge {
+                    nodes,
+                    loop_id: loop_of(mid),
+                });
             }
             i += count;
         }
-        Ok(Mesh { nodes, triangles, triangle_areas, node_areas, edges, edge_weights, boundary })
+        Ok(Mesh {
+            nodes,
+            triangles,
+            triangle_areas,
+            node_areas,
+            edges,
+            edge_weights,
+            boundary,
+        })
     }
 
     /// Total area.
@@ -185,10 +201,16 @@ impl Mesh {
         let tri = self.triangles[t];
         let mut out = [0.0; 3];
         for (k, slot) in out.iter_mut().enumerate() {
-            let (o, p, q) = (self.node(tri[k]), self.node(tri[(k + 1) % 3]), self.node(tri[(k + 2) % 3]));
+            let (o, p, q) = (
+                self.node(tri[k]),
+                self.node(tri[(k + 1) % 3]),
+                self.node(tri[(k + 2) % 3]),
+            );
             let u = [p[0] - o[0], p[1] - o[1]];
             let v = [q[0] - o[0], q[1] - o[1]];
-            *slot = (u[0] * v[1] - u[1] * v[0]).atan2(u[0] * v[0] + u[1] * v[1]).to_degrees();
+            *slot = (u[0] * v[1] - u[1] * v[0])
+                .atan2(u[0] * v[0] + u[1] * v[1])
+                .to_degrees();
         }
         out
     }
@@ -235,7 +257,10 @@ mod tests {
         let grad = |i: usize| {
             let (j, k) = ((i + 1) % 3, (i + 2) % 3);
             let (pj, pk) = (p(j), p(k));
-            [(pj[1] - pk[1]) / (2.0 * area), (pk[0] - pj[0]) / (2.0 * area)]
+            [
+                (pj[1] - pk[1]) / (2.0 * area),
+                (pk[0] - pj[0]) / (2.0 * area),
+            ]
         };
         for (e, w) in m.edges.iter().zip(&m.edge_weights) {
             let (gi, gj) = (grad(e[0]), grad(e[1]));

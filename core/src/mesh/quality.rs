@@ -74,7 +74,8 @@ impl QualityReport {
             .zip(&mesh.edge_weights)
             .filter(|(e, w)| boundary_set.contains(*e) && **w < 0.0)
             .count();
-        let loops: std::collections::HashSet<usize> = mesh.boundary.iter().map(|b| b.loop_id).collect();
+        let loops: std::collections::HashSet<usize> =
+            mesh.boundary.iter().map(|b| b.loop_id).collect();
         QualityReport {
             nodes: mesh.num_nodes(),
             triangles: mesh.triangles.len(),
@@ -104,7 +105,8 @@ impl QualityReport {
         r.exact_area = built.plate.exact_area;
         r.area_relative_error = r.exact_area.map(|a| (r.area - a) / a);
         r.exact_boundary_length = built.plate.exact_perimeter;
-        r.boundary_length_relative_error = r.exact_boundary_length.map(|l| (r.boundary_length - l) / l);
+        r.boundary_length_relative_error =
+            r.exact_boundary_length.map(|l| (r.boundary_length - l) / l);
         r.min_corner_angle_deg = Some(built.plate.smallest_corner_angle());
         r
     }
@@ -118,15 +120,27 @@ impl QualityReport {
         row("nodes", self.nodes.to_string());
         row("triangles", self.triangles.to_string());
         row("edges", self.edges.to_string());
-        row("boundary edges", format!("{} in {} loop(s)", self.boundary_edges, self.boundary_loops));
+        row(
+            "boundary edges",
+            format!("{} in {} loop(s)", self.boundary_edges, self.boundary_loops),
+        );
         row(&format!("area [{unit}²]"), format!("{:.6}", self.area));
         row("  exact", opt(self.exact_area));
         row("  relative error", rel(self.area_relative_error));
-        row(&format!("boundary length [{unit}]"), format!("{:.6}", self.boundary_length));
+        row(
+            &format!("boundary length [{unit}]"),
+            format!("{:.6}", self.boundary_length),
+        );
         row("  exact", opt(self.exact_boundary_length));
         row("  relative error", rel(self.boundary_length_relative_error));
-        row("min / max angle [deg]", format!("{:.2} / {:.2}", self.min_angle_deg, self.max_angle_deg));
-        row("sharpest plate corner [deg]", opt(self.min_corner_angle_deg).replace(".000000", ""));
+        row(
+            "min / max angle [deg]",
+            format!("{:.2} / {:.2}", self.min_angle_deg, self.max_angle_deg),
+        );
+        row(
+            "sharpest plate corner [deg]",
+            opt(self.min_corner_angle_deg).replace(".000000", ""),
+        );
         row(
             &format!("edge length [{unit}]"),
             format!(
@@ -134,8 +148,14 @@ impl QualityReport {
                 self.min_edge_length, self.mean_edge_length, self.max_edge_length
             ),
         );
-        row("negative edge weights", self.negative_edge_weights.to_string());
-        row("obtuse boundary angles", self.obtuse_boundary_angles.to_string());
+        row(
+            "negative edge weights",
+            self.negative_edge_weights.to_string(),
+        );
+        row(
+            "obtuse boundary angles",
+            self.obtuse_boundary_angles.to_string(),
+        );
         s
     }
 }

@@ -28,7 +28,7 @@ mod tests {
         // A path 0-5-2-4-1-3 scrambled; after RCM neighbours differ by exactly one.
         let edges = [[0, 5], [5, 2], [2, 4], [4, 1], [1, 3]];
         let order = reverse_cuthill_mckee(6, &edges);
-        let mut new_of = vec![0; 6];
+        let mut new_of = [0; 6];
         for (new, &old) in order.iter().enumerate() {
             new_of[old] = new;
         }

@@ -55,7 +55,8 @@ impl SizeField {
             for k in 0..steps {
                 let r = (k as f64 + 0.5) / steps as f64 * r_end;
                 let h = s.size + self.grading * r;
-                extra += (density(h) - density(self.far)) * 2.0 * std::f64::consts::PI * r * r_end / steps as f64;
+                extra += (density(h) - density(self.far)) * 2.0 * std::f64::consts::PI * r * r_end
+                    / steps as f64;
             }
             n += extra.min(area * density(s.size));
         }
@@ -97,7 +98,10 @@ impl SizeField {
                 let phase = if ring % 2 == 0 { 0.0 } else { 0.5 };
                 for k in 0..n {
                     let a = 2.0 * std::f64::consts::PI * (k as f64 + phase) / n as f64;
-                    push([s.centre[0] + r * a.cos(), s.centre[1] + r * a.sin()], &mut seeds);
+                    push(
+                        [s.centre[0] + r * a.cos(), s.centre[1] + r * a.sin()],
+                        &mut seeds,
+                    );
                 }
                 ring += 1;
                 if seeds.len() > 50_000_000 {
@@ -115,7 +119,14 @@ mod tests {
 
     #[test]
     fn size_grows_away_from_spots_and_caps_at_far() {
-        let f = SizeField { far: 1.0, spots: vec![Spot { centre: [0.0, 0.0], size: 0.1 }], grading: 0.3 };
+        let f = SizeField {
+            far: 1.0,
+            spots: vec![Spot {
+                centre: [0.0, 0.0],
+                size: 0.1,
+            }],
+            grading: 0.3,
+        };
         assert_eq!(f.at([0.0, 0.0]), 0.1);
         assert!((f.at([1.0, 0.0]) - 0.4).abs() < 1e-12);
         assert_eq!(f.at([10.0, 0.0]), 1.0);
@@ -124,7 +135,14 @@ mod tests {
 
     #[test]
     fn seeds_are_spaced_at_the_local_size() {
-        let f = SizeField { far: 1.0, spots: vec![Spot { centre: [0.0, 0.0], size: 0.1 }], grading: 0.3 };
+        let f = SizeField {
+            far: 1.0,
+            spots: vec![Spot {
+                centre: [0.0, 0.0],
+                size: 0.1,
+            }],
+            grading: 0.3,
+        };
         let seeds = f.spot_seeds(&|_, _| true);
         assert!(seeds.len() > 50);
         for p in &seeds {
@@ -134,7 +152,10 @@ mod tests {
                 .filter(|q| *q != p)
                 .map(|q| dist(*p, *q))
                 .fold(f64::MAX, f64::min);
-            assert!(nearest > 0.4 * h && nearest < 1.6 * h, "seed {p:?}: nearest {nearest}, h {h}");
+            assert!(
+                nearest > 0.4 * h && nearest < 1.6 * h,
+                "seed {p:?}: nearest {nearest}, h {h}"
+            );
         }
     }
 }

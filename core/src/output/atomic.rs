@@ -5,7 +5,10 @@ use std::io::Write;
 use std::path::Path;
 
 fn io_err(path: &Path, e: impl std::fmt::Display) -> OutputError {
-    OutputError::Io { path: path.to_path_buf(), reason: e.to_string() }
+    OutputError::Io {
+        path: path.to_path_buf(),
+        reason: e.to_string(),
+    }
 }
 
 fn dir_of(path: &Path) -> &Path {
@@ -42,7 +45,10 @@ pub fn write_atomically_via_path(
     path: &Path,
     fill: impl FnOnce(&Path) -> Result<(), OutputError>,
 ) -> Result<(), OutputError> {
-    let suffix = path.extension().map(|e| format!(".{}", e.to_string_lossy())).unwrap_or_default();
+    let suffix = path
+        .extension()
+        .map(|e| format!(".{}", e.to_string_lossy()))
+        .unwrap_or_default();
     let tmp = tempfile::Builder::new()
         .prefix(".agarium-")
         .suffix(&suffix)
@@ -61,10 +67,17 @@ mod tests {
     fn failure_leaves_old_file_and_no_temporaries() {
         let dir = tempfile::tempdir().unwrap();
         let target = dir.path().join("out.txt");
-        write_atomically(&target, |w| w.write_all(b"first").map_err(|e| io_err(Path::new("x"), e))).unwrap();
+        write_atomically(&target, |w| {
+            w.write_all(b"first").map_err(|e| io_err(Path::new("x"), e))
+        })
+        .unwrap();
         let err = write_atomically(&target, |w| {
-            w.write_all(b"partial").map_err(|e| io_err(Path::new("x"), e))?;
-            Err(OutputError::Encode { path: "x".into(), reason: "boom".into() })
+            w.write_all(b"partial")
+                .map_err(|e| io_err(Path::new("x"), e))?;
+            Err(OutputError::Encode {
+                path: "x".into(),
+                reason: "boom".into(),
+            })
         });
         assert!(err.is_err());
         assert_eq!(std::fs::read_to_string(&target).unwrap(), "first");
@@ -73,7 +86,8 @@ mod tests {
 
     #[test]
     fn missing_directory_is_an_error() {
-        let err = write_atomically(Path::new("/nonexistent-dir-agarium/x.vtu"), |_| Ok(())).unwrap_err();
+        let err =
+            write_atomically(Path::new("/nonexistent-dir-agarium/x.vtu"), |_| Ok(())).unwrap_err();
         assert!(err.to_string().contains("/nonexistent-dir-agarium/x.vtu"));
     }
 }

@@ -20,7 +20,10 @@ impl Default for PngOptions {
 
 /// Draws the mesh's edges (boundary loops darker) to a PNG file, atomically.
 pub fn write_mesh_png(path: &Path, mesh: &Mesh, options: PngOptions) -> Result<(), OutputError> {
-    let encode = |reason: String| OutputError::Encode { path: path.to_path_buf(), reason };
+    let encode = |reason: String| OutputError::Encode {
+        path: path.to_path_buf(),
+        reason,
+    };
     if mesh.num_nodes() == 0 {
         return Err(encode("empty mesh".into()));
     }
@@ -36,7 +39,10 @@ pub fn write_mesh_png(path: &Path, mesh: &Mesh, options: PngOptions) -> Result<(
     let long = options.pixels.clamp(16, 16384) as f64;
     let margin = 10.0;
     let scale = (long - 2.0 * margin) / w.max(h);
-    let (px, py) = ((w * scale + 2.0 * margin).ceil() as u32, (h * scale + 2.0 * margin).ceil() as u32);
+    let (px, py) = (
+        (w * scale + 2.0 * margin).ceil() as u32,
+        (h * scale + 2.0 * margin).ceil() as u32,
+    );
     let to_px = |p: [f64; 2]| -> (i32, i32) {
         (
             (margin + (p[0] - lo[0]) * scale).round() as i32,
@@ -46,16 +52,23 @@ pub fn write_mesh_png(path: &Path, mesh: &Mesh, options: PngOptions) -> Result<(
     write_atomically_via_path(path, |tmp| {
         let root = BitMapBackend::new(tmp, (px, py)).into_drawing_area();
         let e = |x: String| encode(x);
-        root.fill(&RGBColor(250, 249, 244)).map_err(|x| e(x.to_string()))?;
+        root.fill(&RGBColor(250, 249, 244))
+            .map_err(|x| e(x.to_string()))?;
         let interior = RGBColor(96, 128, 112);
         for edge in &mesh.edges {
-            root.draw(&PathElement::new(vec![to_px(mesh.node(edge[0])), to_px(mesh.node(edge[1]))], interior))
-                .map_err(|x| e(x.to_string()))?;
+            root.draw(&PathElement::new(
+                vec![to_px(mesh.node(edge[0])), to_px(mesh.node(edge[1]))],
+                interior,
+            ))
+            .map_err(|x| e(x.to_string()))?;
         }
         let outline = RGBColor(120, 40, 30).stroke_width(2);
         for b in &mesh.boundary {
-            root.draw(&PathElement::new(vec![to_px(mesh.node(b.nodes[0])), to_px(mesh.node(b.nodes[1]))], outline))
-                .map_err(|x| e(x.to_string()))?;
+            root.draw(&PathElement::new(
+                vec![to_px(mesh.node(b.nodes[0])), to_px(mesh.node(b.nodes[1]))],
+                outline,
+            ))
+            .map_err(|x| e(x.to_string()))?;
         }
         root.present().map_err(|x| e(x.to_string()))?;
         Ok(())

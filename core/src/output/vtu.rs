@@ -4,8 +4,8 @@ use super::{write_atomically, OutputError};
 use crate::mesh::Mesh;
 use std::path::Path;
 use vtkio::model::{
-    Attribute, Attributes, ByteOrder, CellType, Cells, DataSet, IOBuffer, UnstructuredGridPiece, Version,
-    VertexNumbers, Vtk,
+    Attribute, Attributes, ByteOrder, CellType, Cells, DataSet, IOBuffer, UnstructuredGridPiece,
+    Version, VertexNumbers, Vtk,
 };
 
 /// A named field on the mesh's nodes or triangles.
@@ -17,16 +17,34 @@ pub struct Field<'a> {
 }
 
 /// Writes `mesh` with point and cell fields as a .vtu file (z = 0), atomically.
-pub fn write_vtu(path: &Path, mesh: &Mesh, point_fields: &[Field], cell_fields: &[Field]) -> Result<(), OutputError> {
-    let encode = |reason: String| OutputError::Encode { path: path.to_path_buf(), reason };
+pub fn write_vtu(
+    path: &Path,
+    mesh: &Mesh,
+    point_fields: &[Field],
+    cell_fields: &[Field],
+) -> Result<(), OutputError> {
+    let encode = |reason: String| OutputError::Encode {
+        path: path.to_path_buf(),
+        reason,
+    };
     for f in point_fields {
         if f.values.len() != mesh.num_nodes() {
-            return Err(encode(format!("point field '{}' has {} values for {} nodes", f.name, f.values.len(), mesh.num_nodes())));
+            return Err(encode(format!(
+                "point field '{}' has {} values for {} nodes",
+                f.name,
+                f.values.len(),
+                mesh.num_nodes()
+            )));
         }
     }
     for f in cell_fields {
         if f.values.len() != mesh.triangles.len() {
-            return Err(encode(format!("cell field '{}' has {} values for {} triangles", f.name, f.values.len(), mesh.triangles.len())));
+            return Err(encode(format!(
+                "cell field '{}' has {} values for {} triangles",
+                f.name,
+                f.values.len(),
+                mesh.triangles.len()
+            )));
         }
     }
     let mut points = Vec::with_capacity(3 * mesh.num_nodes());
@@ -34,9 +52,14 @@ pub fn write_vtu(path: &Path, mesh: &Mesh, point_fields: &[Field], cell_fields: 
         let p = mesh.node(i);
         points.extend_from_slice(&[p[0], p[1], 0.0]);
     }
-    let connectivity: Vec<u64> = mesh.triangles.iter().flat_map(|t| t.iter().map(|&v| v as u64)).collect();
+    let connectivity: Vec<u64> = mesh
+        .triangles
+        .iter()
+        .flat_map(|t| t.iter().map(|&v| v as u64))
+        .collect();
     let offsets: Vec<u64> = (1..=mesh.triangles.len() as u64).map(|k| 3 * k).collect();
-    let attr = |f: &Field| Attribute::scalars(f.name, 1).with_data(IOBuffer::F64(f.values.to_vec()));
+    let attr =
+        |f: &Field| Attribute::scalars(f.name, 1).with_data(IOBuffer::F64(f.values.to_vec()));
     let vtk = Vtk {
         version: Version { major: 1, minor: 0 },
         title: String::new(),
@@ -45,7 +68,10 @@ pub fn write_vtu(path: &Path, mesh: &Mesh, point_fields: &[Field], cell_fields: 
         data: DataSet::inline(UnstructuredGridPiece {
             points: IOBuffer::F64(points),
             cells: Cells {
-                cell_verts: VertexNumbers::XML { connectivity, offsets },
+                cell_verts: VertexNumbers::XML {
+                    connectivity,
+                    offsets,
+                },
                 types: vec![CellType::Triangle; mesh.triangles.len()],
             },
             data: Attributes {
@@ -54,7 +80,9 @@ pub fn write_vtu(path: &Path, mesh: &Mesh, point_fields: &[Field], cell_fields: 
             },
         }),
     };
-    write_atomically(path, |w| vtk.write_xml(w).map_err(|e| encode(e.to_string())))
+    write_atomically(path, |w| {
+        vtk.write_xml(w).map_err(|e| encode(e.to_string()))
+    })
 }
 
 #[cfg(test)]
@@ -69,11 +97,30 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("m.vtu");
         let areas = mesh.node_areas.clone();
-        write_vtu(&path, &mesh, &[Field { name: "node_area", values: &areas }], &[]).unwrap();
+        write_vtu(
+            &path,
+            &mesh,
+            &[Field {
+                name: "node_area",
+                values: &areas,
+            }],
+            &[],
+        )
+        .unwrap();
         let back = Vtk::import(&path).unwrap();
-        let DataSet::UnstructuredGrid { pieces, .. } = back.data else { panic!("not a grid") };
+        let DataSet::UnstructuredGrid { pieces, .. } = back.data else {
+            panic!("not a grid")
+        };
         assert_eq!(pieces.len(), 1);
-        let bad = write_vtu(&path, &mesh, &[Field { name: "short", values: &[1.0] }], &[]);
+        let bad = write_vtu(
+            &path,
+            &mesh,
+            &[Field {
+                name: "short",
+                values: &[1.0],
+            }],
+            &[],
+        );
         assert!(bad.is_err());
     }
 }
