@@ -29,6 +29,8 @@
 //! `agarium check`.
 
 #![deny(missing_docs)]
+// Errors carry positions and context for the user; they are built once, on the failure path.
+#![allow(clippy::result_large_err)]
 
 pub mod declare;
 pub mod diff;

@@ -499,7 +499,7 @@ impl<'a> Lowerer<'a> {
         }
     }
 
-    fn to_float(&mut self, v: Val, pos: Pos, what: &str) -> Result<NodeId, LowerError> {
+    fn widen(&mut self, v: Val, pos: Pos, what: &str) -> Result<NodeId, LowerError> {
         match v {
             Val::F(n) => Ok(n),
             Val::I(i) => Ok(self.graph.konst(i as f64)),
@@ -549,8 +549,8 @@ impl<'a> Lowerer<'a> {
                 Ok(Val::I(if name == "min" { *a.min(b) } else { *a.max(b) }))
             }
             ("min" | "max", [a, b]) => {
-                let a = self.to_float(*a, pos, name)?;
-                let b = self.to_float(*b, pos, name)?;
+                let a = self.widen(*a, pos, name)?;
+                let b = self.widen(*b, pos, name)?;
                 let op = if name == "min" { Bin::Min } else { Bin::Max };
                 Ok(Val::F(self.graph.bin(op, a, b)))
             }
@@ -562,8 +562,8 @@ impl<'a> Lowerer<'a> {
                         pos,
                     });
                 }
-                let a = self.to_float(*a, pos, name)?;
-                let b = self.to_float(*b, pos, name)?;
+                let a = self.widen(*a, pos, name)?;
+                let b = self.widen(*b, pos, name)?;
                 Ok(Val::F(self.graph.bin(Bin::Pow, a, b)))
             }
             _ => Err(LowerError::UnknownFunction {
@@ -607,8 +607,8 @@ impl<'a> Lowerer<'a> {
                         .into())
                     }
                 };
-                let x = self.to_float(*a, pos, &format!("`{op}`"))?;
-                let y = self.to_float(*b, pos, &format!("`{op}`"))?;
+                let x = self.widen(*a, pos, &format!("`{op}`"))?;
+                let y = self.widen(*b, pos, &format!("`{op}`"))?;
                 let n = self.graph.bin(bop, x, y);
                 Ok(if is_comparison(op) {
                     Val::B(n)

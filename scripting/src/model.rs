@@ -400,8 +400,8 @@ fn kernel(g: &mut Graph, ns: usize, outputs: &[NodeId], jacobian: bool) -> Graph
     if jacobian {
         for s in 0..ns {
             let mut d = Differentiator::new(g, Input::Species(s as u32));
-            for (o, &out) in outputs.iter().enumerate() {
-                derivs[o][s] = d.derive(out);
+            for (row, &out) in derivs.iter_mut().zip(outputs) {
+                row[s] = d.derive(out);
             }
         }
     }

@@ -1,5 +1,7 @@
 //! Every way a model file can be wrong gives a typed error with its position.
 
+#![allow(clippy::result_large_err)]
+
 use agarium_scripting::lower::LowerError;
 use agarium_scripting::{Model, ModelError, OverrideError, Overrides};
 
