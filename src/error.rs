@@ -19,10 +19,16 @@ pub struct CliError {
 impl CliError {
     /// Invalid input: exit code 2.
     pub fn input(message: impl Display) -> Self {
-        CliError { code: EXIT_INPUT, message: message.to_string() }
+        CliError {
+            code: EXIT_INPUT,
+            message: message.to_string(),
+        }
     }
     /// Failure not caused by the input (for example a disk error): exit code 1.
     pub fn failure(message: impl Display) -> Self {
-        CliError { code: EXIT_FAILURE, message: message.to_string() }
+        CliError {
+            code: EXIT_FAILURE,
+            message: message.to_string(),
+        }
     }
 }

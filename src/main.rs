@@ -19,7 +19,7 @@ struct Cli {
 #[derive(Subcommand)]
 enum Command {
     /// Build a quality triangle mesh of a plate and report on it.
-    Mesh(mesh::MeshArgs),
+    Mesh(Box<mesh::MeshArgs>),
     /// Parse and compile a model file and report on its terms.
     Check(check::CheckArgs),
 }

@@ -14,7 +14,12 @@ use std::path::PathBuf;
 pub struct PlateArgs {
     /// Outer outline: circle:R, ellipse:A,B, rect:W,H, annulus:R,r or polygon:x,y;x,y;...
     /// (append @X,Y to move the centre of a circle, ellipse, rectangle or annulus).
-    #[arg(long, value_name = "SHAPE", conflicts_with = "outline", required_unless_present = "outline")]
+    #[arg(
+        long,
+        value_name = "SHAPE",
+        conflicts_with = "outline",
+        required_unless_present = "outline"
+    )]
     pub plate: Option<String>,
     /// Outline file: lines of `x y`, loops separated by blank lines (first outer, then holes).
     #[arg(long, value_name = "FILE")]
@@ -38,19 +43,34 @@ pub struct PlateArgs {
 #[derive(clap::Args, Debug, Clone)]
 pub struct MeshingArgs {
     /// Target edge length away from spots [default: 1/50 of the plate's widest extent].
-    #[arg(long, value_name = "H", conflicts_with = "max_area", allow_hyphen_values = true)]
+    #[arg(
+        long,
+        value_name = "H",
+        conflicts_with = "max_area",
+        allow_hyphen_values = true
+    )]
     pub size: Option<f64>,
     /// Largest triangle area instead of an edge length.
     #[arg(long, value_name = "A", allow_hyphen_values = true)]
     pub max_area: Option<f64>,
     /// Smallest triangle angle in degrees (at most 34).
-    #[arg(long, value_name = "DEG", default_value_t = 30.0, allow_hyphen_values = true)]
+    #[arg(
+        long,
+        value_name = "DEG",
+        default_value_t = 30.0,
+        allow_hyphen_values = true
+    )]
     pub min_angle: f64,
     /// Refine near (X,Y) to edge length H [default H: a fifth of --size]; repeatable.
     #[arg(long, value_name = "X,Y[,H]", allow_hyphen_values = true)]
     pub spot: Vec<String>,
     /// Growth of the edge length per unit distance from a spot.
-    #[arg(long, value_name = "G", default_value_t = 0.25, allow_hyphen_values = true)]
+    #[arg(
+        long,
+        value_name = "G",
+        default_value_t = 0.25,
+        allow_hyphen_values = true
+    )]
     pub grading: f64,
     /// Most nodes the mesh may have.
     #[arg(long, value_name = "N", default_value_t = 2_000_000)]
@@ -63,7 +83,13 @@ fn numbers(what: &str, text: &str, sep: char) -> Result<Vec<f64>, String> {
             let s = s.trim();
             s.parse::<f64>()
                 .map_err(|_| format!("{what}: '{s}' is not a number"))
-                .and_then(|v| if v.is_finite() { Ok(v) } else { Err(format!("{what}: '{s}' is not finite")) })
+                .and_then(|v| {
+                    if v.is_finite() {
+                        Ok(v)
+                    } else {
+                        Err(format!("{what}: '{s}' is not finite"))
+                    }
+                })
         })
         .collect()
 }
@@ -83,7 +109,9 @@ pub fn parse_shape(flag: &str, text: &str) -> Result<Shape, CliError> {
         Some(a) => {
             let c = numbers(&what, a, ',').map_err(err)?;
             if c.len() != 2 {
-                return Err(err(format!("{what}: the centre after @ needs two numbers X,Y")));
+                return Err(err(format!(
+                    "{what}: the centre after @ needs two numbers X,Y"
+                )));
             }
             [c[0], c[1]]
         }
@@ -93,39 +121,62 @@ pub fn parse_shape(flag: &str, text: &str) -> Result<Shape, CliError> {
         if v.len() == n {
             Ok(())
         } else {
-            Err(err(format!("{what}: {kind} takes {names}, got {} number(s)", v.len())))
+            Err(err(format!(
+                "{what}: {kind} takes {names}, got {} number(s)",
+                v.len()
+            )))
         }
     };
     let shape = match kind.trim() {
         "circle" => {
             let v = numbers(&what, body, ',').map_err(err)?;
             count(&v, 1, "a radius R")?;
-            Shape::Circle { centre, radius: v[0] }
+            Shape::Circle {
+                centre,
+                radius: v[0],
+            }
         }
         "ellipse" => {
             let v = numbers(&what, body, ',').map_err(err)?;
             count(&v, 2, "semi-axes A,B")?;
-            Shape::Ellipse { centre, semi_x: v[0], semi_y: v[1] }
+            Shape::Ellipse {
+                centre,
+                semi_x: v[0],
+                semi_y: v[1],
+            }
         }
         "rect" => {
             let v = numbers(&what, body, ',').map_err(err)?;
             count(&v, 2, "width and height W,H")?;
-            Shape::Rectangle { centre, width: v[0], height: v[1] }
+            Shape::Rectangle {
+                centre,
+                width: v[0],
+                height: v[1],
+            }
         }
         "annulus" => {
             let v = numbers(&what, body, ',').map_err(err)?;
             count(&v, 2, "outer and inner radius R,r")?;
-            Shape::Annulus { centre, outer: v[0], inner: v[1] }
+            Shape::Annulus {
+                centre,
+                outer: v[0],
+                inner: v[1],
+            }
         }
         "polygon" => {
             if at.is_some() {
-                return Err(err(format!("{what}: a polygon has no centre; give its points where they are")));
+                return Err(err(format!(
+                    "{what}: a polygon has no centre; give its points where they are"
+                )));
             }
             let mut points = Vec::new();
             for (k, pair) in body.split(';').filter(|s| !s.trim().is_empty()).enumerate() {
                 let v = numbers(&what, pair, ',').map_err(err)?;
                 if v.len() != 2 {
-                    return Err(err(format!("{what}: point {} '{pair}' needs two numbers x,y", k + 1)));
+                    return Err(err(format!(
+                        "{what}: point {} '{pair}' needs two numbers x,y",
+                        k + 1
+                    )));
                 }
                 points.push([v[0], v[1]]);
             }
@@ -146,7 +197,11 @@ impl PlateArgs {
         let (outer, mut holes) = match (&self.plate, &self.outline) {
             (Some(text), None) => (parse_shape("--plate", text)?, Vec::new()),
             (None, Some(path)) => read_outline(path).map_err(CliError::input)?,
-            _ => return Err(CliError::input("give the plate with either --plate or --outline")),
+            _ => {
+                return Err(CliError::input(
+                    "give the plate with either --plate or --outline",
+                ))
+            }
         };
         for h in &self.hole {
             holes.push(parse_shape("--hole", h)?);
@@ -155,16 +210,27 @@ impl PlateArgs {
         for t in &self.trim {
             let v = numbers(&format!("--trim '{t}'"), t, ',').map_err(CliError::input)?;
             if v.len() != 3 {
-                return Err(CliError::input(format!("--trim '{t}': expected three numbers NX,NY,D")));
+                return Err(CliError::input(format!(
+                    "--trim '{t}': expected three numbers NX,NY,D"
+                )));
             }
-            cuts.push(Cut::HalfPlane { normal: [v[0], v[1]], offset: v[2] });
+            cuts.push(Cut::HalfPlane {
+                normal: [v[0], v[1]],
+                offset: v[2],
+            });
         }
         for w in &self.wedge {
             let v = numbers(&format!("--wedge '{w}'"), w, ',').map_err(CliError::input)?;
             if v.len() != 4 {
-                return Err(CliError::input(format!("--wedge '{w}': expected four numbers X,Y,FROM,TO")));
+                return Err(CliError::input(format!(
+                    "--wedge '{w}': expected four numbers X,Y,FROM,TO"
+                )));
             }
-            cuts.push(Cut::Wedge { apex: [v[0], v[1]], from_deg: v[2], to_deg: v[3] });
+            cuts.push(Cut::Wedge {
+                apex: [v[0], v[1]],
+                from_deg: v[2],
+                to_deg: v[3],
+            });
         }
         Ok(PlateSpec { outer, holes, cuts })
     }
@@ -197,26 +263,46 @@ impl MeshingArgs {
             (Some(h), _) => h,
             (None, Some(a)) => {
                 if !(a.is_finite() && a > 0.0) {
-                    return Err(CliError::input(format!("--max-area must be a positive number, got {a}")));
+                    return Err(CliError::input(format!(
+                        "--max-area must be a positive number, got {a}"
+                    )));
                 }
                 MeshOptions::size_for_max_area(a)
             }
             (None, None) => extent(&spec.outer) / 50.0,
         };
         if !(size.is_finite() && size > 0.0) {
-            return Err(CliError::input(format!("--size must be a positive number, got {size}")));
+            return Err(CliError::input(format!(
+                "--size must be a positive number, got {size}"
+            )));
         }
         let mut spots = Vec::new();
         for s in &self.spot {
             let v = numbers(&format!("--spot '{s}'"), s, ',').map_err(CliError::input)?;
             let spot = match v.as_slice() {
-                [x, y] => Spot { centre: [*x, *y], size: size / 5.0 },
-                [x, y, h] => Spot { centre: [*x, *y], size: *h },
-                _ => return Err(CliError::input(format!("--spot '{s}': expected X,Y or X,Y,H"))),
+                [x, y] => Spot {
+                    centre: [*x, *y],
+                    size: size / 5.0,
+                },
+                [x, y, h] => Spot {
+                    centre: [*x, *y],
+                    size: *h,
+                },
+                _ => {
+                    return Err(CliError::input(format!(
+                        "--spot '{s}': expected X,Y or X,Y,H"
+                    )))
+                }
             };
             spots.push(spot);
         }
-        Ok(MeshOptions { size, min_angle_deg: self.min_angle, spots, grading: self.grading, max_nodes: self.max_nodes })
+        Ok(MeshOptions {
+            size,
+            min_angle_deg: self.min_angle,
+            spots,
+            grading: self.grading,
+            max_nodes: self.max_nodes,
+        })
     }
 }
 
@@ -226,16 +312,36 @@ mod tests {
 
     #[test]
     fn shapes_parse() {
-        assert_eq!(parse_shape("--plate", "circle:45").unwrap(), Shape::Circle { centre: [0.0, 0.0], radius: 45.0 });
+        assert_eq!(
+            parse_shape("--plate", "circle:45").unwrap(),
+            Shape::Circle {
+                centre: [0.0, 0.0],
+                radius: 45.0
+            }
+        );
         assert_eq!(
             parse_shape("--hole", "rect:4,2@10,-3").unwrap(),
-            Shape::Rectangle { centre: [10.0, -3.0], width: 4.0, height: 2.0 }
+            Shape::Rectangle {
+                centre: [10.0, -3.0],
+                width: 4.0,
+                height: 2.0
+            }
         );
         assert_eq!(
             parse_shape("--plate", "polygon:0,0;1,0;0,1").unwrap(),
-            Shape::Polygon { points: vec![[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]] }
+            Shape::Polygon {
+                points: vec![[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]
+            }
         );
-        for bad in ["circle", "circle:x", "circle:1,2", "blob:3", "polygon:0,0;1", "circle:3@1", "polygon:0,0@1,1"] {
+        for bad in [
+            "circle",
+            "circle:x",
+            "circle:1,2",
+            "blob:3",
+            "polygon:0,0;1",
+            "circle:3@1",
+            "polygon:0,0@1,1",
+        ] {
             let e = parse_shape("--plate", bad).unwrap_err();
             assert_eq!(e.code, 2);
             assert!(e.message.contains(bad), "{}", e.message);

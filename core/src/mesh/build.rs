@@ -11,7 +11,6 @@ use ndarray::Array2;
 use spade::{
     AngleLimit, ConstrainedDelaunayTriangulation, Point2, RefinementParameters, Triangulation,
 };
-use std::collections::HashSet;
 
 /// How to mesh a plate.
 #[derive(Clone, Debug, PartialEq)]
@@ -208,14 +207,17 @@ pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, 
             budget: options.max_nodes,
         });
     }
-    let excluded: HashSet<_> = result.excluded_faces.into_iter().collect();
+    let mut excluded = vec![false; cdt.num_all_faces()];
+    for f in result.excluded_faces {
+        excluded[f.index()] = true;
+    }
 
     // Keep inner faces, compact the vertices they use.
     let mut used = vec![usize::MAX; cdt.num_vertices()];
     let mut coords: Vec<[f64; 2]> = Vec::new();
     let mut triangles = Vec::with_capacity(cdt.num_inner_faces());
     for face in cdt.inner_faces() {
-        if excluded.contains(&face.fix()) {
+        if excluded[face.fix().index()] {
             continue;
         }
         let mut tri = [0usize; 3];
@@ -234,20 +236,7 @@ pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, 
 
     // Renumber by reverse Cuthill–McKee on the triangle adjacency.
     let n = coords.len();
-    let mut pairs: Vec<[usize; 2]> = Vec::with_capacity(3 * triangles.len());
-    for t in &triangles {
-        for k in 0..3 {
-            let (a, b) = (t[k], t[(k + 1) % 3]);
-            if a < b {
-                pairs.push([a, b]);
-            } else {
-                pairs.push([b, a]);
-            }
-        }
-    }
-    pairs.sort_unstable();
-    pairs.dedup();
-    let order = reverse_cuthill_mckee(n, &pairs);
+    let order = reverse_cuthill_mckee(n, &triangles);
     let mut new_of = vec![0usize; n];
     for (new, &old) in order.iter().enumerate() {
         new_of[old] = new;

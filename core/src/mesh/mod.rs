@@ -15,6 +15,7 @@ pub use renumber::reverse_cuthill_mckee;
 pub use sizing::{SizeField, Spot};
 
 use ndarray::Array2;
+use rayon::slice::ParallelSliceMut;
 
 /// A boundary edge: its two nodes, ordered so the plate lies on the left, and its loop
 /// (0 = outer outline, k = hole k).
@@ -122,7 +123,7 @@ impl Mesh {
                 sides.push((p.min(q), p.max(q), half_cot, o));
             }
         }
-        sides.sort_unstable_by_key(|s| (s.0, s.1));
+        sides.par_sort_unstable_by_key(|s| (s.0, s.1));
         let mut edges = Vec::with_capacity(sides.len() / 2 + n);
         let mut edge_weights = Vec::with_capacity(sides.len() / 2 + n);
         let mut boundary = Vec::new();
