@@ -55,6 +55,9 @@ fn segments_meet(a: Point, b: Point, c: Point, d: Point) -> bool {
 /// Even-odd point-in-polygon test (ray casting).
 pub fn point_in_ring(p: Point, ring: &[Point]) -> bool {
     let n = ring.len();
+    if n == 0 {
+        return false;
+    }
     let mut inside = false;
     let mut j = n - 1;
     for i in 0..n {
