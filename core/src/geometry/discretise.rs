@@ -87,18 +87,14 @@ pub fn subdivide_polygon(corners: &[Point], h: &dyn Fn(Point) -> f64) -> Ring {
 /// Closed polylines of a shape: one ring, or two for an annulus (outer first, then the hole).
 pub fn shape_rings(shape: &Shape, h: &dyn Fn(Point) -> f64) -> Vec<Ring> {
     match shape {
-        Shape::Circle { centre, radius } => {
-            let (c, r) = (*centre, *radius);
-            vec![sample_closed_curve(
-                &|t| {
-                    [
-                        c[0] + r * (2.0 * PI * t).cos(),
-                        c[1] + r * (2.0 * PI * t).sin(),
-                    ]
-                },
-                h,
-            )]
-        }
+        Shape::Circle { centre, radius } => shape_rings(
+            &Shape::Ellipse {
+                centre: *centre,
+                semi_x: *radius,
+                semi_y: *radius,
+            },
+            h,
+        ),
         Shape::Ellipse {
             centre,
             semi_x,
