@@ -12,8 +12,10 @@ use spade::{
     AngleLimit, ConstrainedDelaunayTriangulation, Point2, RefinementParameters, Triangulation,
 };
 
-/// How to mesh a plate.
-#[derive(Clone, Debug, PartialEq)]
+/// How to mesh a plate. Serde-(de)serialisable so run files and sweeps can carry it; missing
+/// fields take the defaults.
+#[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
+#[serde(default, deny_unknown_fields)]
 pub struct MeshOptions {
     /// Target edge length away from refinement spots, in the plate's length unit.
     pub size: f64,
@@ -349,5 +351,21 @@ mod tests {
             }),
             MeshError::SpotOutside { spot: 1, .. }
         ));
+    }
+}
+
+#[cfg(test)]
+mod serde_tests {
+    use super::*;
+
+    #[test]
+    fn options_read_from_json_with_defaults() {
+        let o: MeshOptions =
+            serde_json::from_str(r#"{"size": 0.5, "spots": [{"centre": [1, 2], "size": 0.1}]}"#)
+                .unwrap();
+        assert_eq!(o.size, 0.5);
+        assert_eq!(o.min_angle_deg, 30.0);
+        assert_eq!(o.spots[0].centre, [1.0, 2.0]);
+        assert!(serde_json::from_str::<MeshOptions>(r#"{"sise": 1}"#).is_err());
     }
 }
