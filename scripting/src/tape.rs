@@ -1,8 +1,10 @@
 //! The chunked evaluator: the nodes a kernel needs become a flat instruction tape over registers,
 //! each register one chunk of [`CHUNK`] node values. Every instruction runs one tight loop over
 //! a chunk (the operation is chosen once per chunk, not per node), registers are reused after
-//! their last use so the working set stays in the first-level cache, constants are broadcast
-//! once per call and species values are copied in once per chunk.
+//! their last use so the working set stays in the first-level cache, and constants are
+//! broadcast once per call. Species and coordinates are read straight from the caller's slices
+//! and outputs written straight into the caller's buffers; only a final partial chunk goes
+//! through padded copies.
 
 use agarium_core::kernel::{check_shapes, BatchKernel, KernelError, KernelInput, Scratch};
 
@@ -12,11 +14,29 @@ use crate::graph::{Bin, Graph, Input, Node, NodeId, Un};
 /// Nodes per chunk.
 pub const CHUNK: usize = 64;
 
+/// Where an operand is read from.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Src {
+    /// A register (temporaries, constants, time).
+    Reg(u32),
+    /// An input slice (species, x, y), indexed into [`Tape::ext`].
+    Ext(u32),
+}
+
+/// Where a result goes.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Dst {
+    /// A register.
+    Reg(u32),
+    /// Output `k`, written in place.
+    Out(u32),
+}
+
 #[derive(Clone, Copy, Debug)]
 enum Instr {
-    Un(Un, u32, u32),
-    Bin(Bin, u32, u32, u32),
-    Sel(u32, u32, u32, u32),
+    Un(Un, Dst, Src),
+    Bin(Bin, Dst, Src, Src),
+    Sel(Dst, Src, Src, Src),
 }
 
 /// A compiled instruction tape.
@@ -24,10 +44,14 @@ enum Instr {
 pub struct Tape {
     n_regs: usize,
     consts: Vec<(u32, f64)>,
-    species: Vec<(u32, usize)>,
-    coords: Vec<(u32, Input)>,
+    /// Register holding the time, if any node reads it.
+    time: Option<u32>,
+    /// Input slices read directly, in [`Src::Ext`] order.
+    ext: Vec<Input>,
     instrs: Vec<Instr>,
-    outputs: Vec<u32>,
+    /// Outputs not written in place by an instruction: copied from a source per chunk.
+    copies: Vec<(u32, Src)>,
+    n_outputs: usize,
 }
 
 impl Tape {
@@ -45,54 +69,82 @@ impl Tape {
             .filter(|&n| needed[n as usize])
             .collect();
         let mut last_use = vec![0usize; g.len()];
+        let mut uses = vec![0usize; g.len()];
         for (k, &n) in order.iter().enumerate() {
             for o in g.operands(n) {
                 last_use[o as usize] = k;
+                uses[o as usize] += 1;
             }
         }
-        for &o in outputs {
-            last_use[o as usize] = usize::MAX;
+        // An output computed by an instruction that nothing else reads is written in place.
+        let mut in_place = vec![u32::MAX; g.len()];
+        for (k, &o) in outputs.iter().enumerate() {
+            let o = o as usize;
+            let computed = !matches!(g.node(o as NodeId), Node::Const(_) | Node::Input(_));
+            if in_place[o] == u32::MAX && uses[o] == 0 && computed {
+                in_place[o] = k as u32;
+            } else {
+                in_place[o] = u32::MAX - 1;
+            }
+            last_use[o] = usize::MAX;
         }
-        let mut reg = vec![u32::MAX; g.len()];
+        let mut src = vec![Src::Reg(u32::MAX); g.len()];
         let mut free: Vec<u32> = Vec::new();
         let mut n_regs = 0u32;
         let mut tape = Tape {
             n_regs: 0,
             consts: vec![],
-            species: vec![],
-            coords: vec![],
+            time: None,
+            ext: vec![],
             instrs: vec![],
-            outputs: vec![],
+            copies: vec![],
+            n_outputs: outputs.len(),
         };
+        fn fresh(n_regs: &mut u32) -> u32 {
+            *n_regs += 1;
+            *n_regs - 1
+        }
         for (k, &n) in order.iter().enumerate() {
             let node = g.node(n);
-            let permanent = matches!(node, Node::Const(_) | Node::Input(_));
-            let r = if permanent {
-                n_regs += 1;
-                n_regs - 1
-            } else {
-                free.pop().unwrap_or_else(|| {
-                    n_regs += 1;
-                    n_regs - 1
-                })
+            let s = |o: NodeId| src[o as usize];
+            let place = in_place[n as usize];
+            let mut dst = || match place {
+                k if k < u32::MAX - 1 => Dst::Out(k),
+                _ => Dst::Reg(free.pop().unwrap_or_else(|| fresh(&mut n_regs))),
             };
-            reg[n as usize] = r;
-            match node {
-                Node::Const(bits) => tape.consts.push((r, f64::from_bits(bits))),
-                Node::Input(Input::Species(s)) => tape.species.push((r, s as usize)),
-                Node::Input(i) => tape.coords.push((r, i)),
-                Node::Un(op, a) => tape.instrs.push(Instr::Un(op, r, reg[a as usize])),
-                Node::Bin(op, a, b) => {
-                    tape.instrs
-                        .push(Instr::Bin(op, r, reg[a as usize], reg[b as usize]))
+            let (ins, d) = match node {
+                Node::Const(bits) => {
+                    let r = fresh(&mut n_regs);
+                    tape.consts.push((r, f64::from_bits(bits)));
+                    (None, Src::Reg(r))
                 }
-                Node::Select(c, a, b) => tape.instrs.push(Instr::Sel(
-                    r,
-                    reg[c as usize],
-                    reg[a as usize],
-                    reg[b as usize],
-                )),
-            }
+                Node::Input(Input::T) => {
+                    let r = fresh(&mut n_regs);
+                    tape.time = Some(r);
+                    (None, Src::Reg(r))
+                }
+                Node::Input(i) => {
+                    tape.ext.push(i);
+                    (None, Src::Ext(tape.ext.len() as u32 - 1))
+                }
+                Node::Un(op, a) => {
+                    let a = s(a);
+                    let d = dst();
+                    (Some(Instr::Un(op, d, a)), as_src(d))
+                }
+                Node::Bin(op, a, b) => {
+                    let (a, b) = (s(a), s(b));
+                    let d = dst();
+                    (Some(Instr::Bin(op, d, a, b)), as_src(d))
+                }
+                Node::Select(c, a, b) => {
+                    let (c, a, b) = (s(c), s(a), s(b));
+                    let d = dst();
+                    (Some(Instr::Sel(d, c, a, b)), as_src(d))
+                }
+            };
+            tape.instrs.extend(ins);
+            src[n as usize] = d;
             // Operands whose last use is here go back to the pool only now, so a destination
             // never aliases its own operands.
             for o in g.operands(n) {
@@ -101,11 +153,17 @@ impl Tape {
                     && !matches!(g.node(o as NodeId), Node::Const(_) | Node::Input(_))
                 {
                     last_use[o] = usize::MAX - 1;
-                    free.push(reg[o]);
+                    if let Src::Reg(r) = src[o] {
+                        free.push(r);
+                    }
                 }
             }
         }
-        tape.outputs = outputs.iter().map(|&o| reg[o as usize]).collect();
+        for (k, &o) in outputs.iter().enumerate() {
+            if in_place[o as usize] != k as u32 {
+                tape.copies.push((k as u32, src[o as usize]));
+            }
+        }
         tape.n_regs = n_regs as usize;
         tape
     }
@@ -125,47 +183,67 @@ impl Tape {
         self.n_regs
     }
 
-    /// Evaluates the tape; output `k` goes to `out[k]` at `offsets[k] ..` for each node.
-    /// `sinks` receives, per output, the slice of `n` values to fill.
+    /// Evaluates the tape over all nodes of `input`; `sinks[k]` (`n` values) receives output `k`.
     pub fn run(&self, input: &KernelInput<'_>, sinks: &mut [&mut [f64]], scratch: &mut Scratch) {
         let n = input.len();
-        let regs = scratch.buffer(self.n_regs * CHUNK);
+        let full = n - n % CHUNK;
+        let tail = n - full;
+        let n_ext = self.ext.len();
+        let buf = scratch.buffer((self.n_regs + n_ext + self.n_outputs) * CHUNK);
+        let (regs, rest) = buf.split_at_mut(self.n_regs * CHUNK);
+        let (tail_in, tail_out) = rest.split_at_mut(n_ext * CHUNK);
         for &(r, v) in &self.consts {
             reg_mut(regs, r).fill(v);
         }
-        for &(r, i) in &self.coords {
-            if i == Input::T {
-                reg_mut(regs, r).fill(input.t);
+        if let Some(r) = self.time {
+            reg_mut(regs, r).fill(input.t);
+        }
+        let ext: Vec<&[f64]> = self
+            .ext
+            .iter()
+            .map(|&i| match i {
+                Input::Species(s) => input.species[s as usize],
+                Input::X => input.x,
+                _ => input.y,
+            })
+            .collect();
+        for at in (0..full).step_by(CHUNK) {
+            self.chunk(regs, &ext, sinks, at);
+        }
+        if tail > 0 {
+            // The last partial chunk runs on padded copies (padding lanes are computed and
+            // dropped).
+            tail_in.fill(0.0);
+            for (dst, src) in tail_in.chunks_exact_mut(CHUNK).zip(&ext) {
+                dst[..tail].copy_from_slice(&src[full..]);
+            }
+            let ext: Vec<&[f64]> = tail_in.chunks_exact(CHUNK).collect();
+            let mut outs: Vec<&mut [f64]> = tail_out.chunks_exact_mut(CHUNK).collect();
+            self.chunk(regs, &ext, &mut outs, 0);
+            for (sink, o) in sinks.iter_mut().zip(&outs) {
+                sink[full..].copy_from_slice(&o[..tail]);
             }
         }
-        let mut start = 0;
-        while start < n {
-            let len = CHUNK.min(n - start);
-            for &(r, s) in &self.species {
-                reg_mut(regs, r)[..len].copy_from_slice(&input.species[s][start..start + len]);
-            }
-            for &(r, i) in &self.coords {
-                let src = match i {
-                    Input::X => input.x,
-                    Input::Y => input.y,
-                    _ => continue,
-                };
-                reg_mut(regs, r)[..len].copy_from_slice(&src[start..start + len]);
-            }
-            for ins in &self.instrs {
-                exec(regs, *ins);
-            }
-            for (sink, &r) in sinks.iter_mut().zip(&self.outputs) {
-                sink[start..start + len].copy_from_slice(&reg(regs, r)[..len]);
-            }
-            start += len;
+    }
+
+    /// One full chunk of nodes starting at `at`.
+    fn chunk(&self, regs: &mut [f64], ext: &[&[f64]], outs: &mut [&mut [f64]], at: usize) {
+        for ins in &self.instrs {
+            exec(regs, ext, outs, at, ins);
+        }
+        for &(k, s) in &self.copies {
+            let dst = &mut outs[k as usize][at..at + CHUNK];
+            dst.copy_from_slice(source(regs, &[], usize::MAX, ext, at, s));
         }
     }
 }
 
-fn reg(regs: &[f64], r: u32) -> &[f64] {
-    let r = r as usize;
-    &regs[r * CHUNK..(r + 1) * CHUNK]
+fn as_src(d: Dst) -> Src {
+    match d {
+        Dst::Reg(r) => Src::Reg(r),
+        // Never read: in-place outputs have no users.
+        Dst::Out(_) => Src::Reg(u32::MAX),
+    }
 }
 
 fn reg_mut(regs: &mut [f64], r: u32) -> &mut [f64] {
@@ -173,20 +251,44 @@ fn reg_mut(regs: &mut [f64], r: u32) -> &mut [f64] {
     &mut regs[r * CHUNK..(r + 1) * CHUNK]
 }
 
-/// Splits the register file into the destination and the rest (destination never aliases).
-fn split(regs: &mut [f64], d: u32) -> (&mut [f64], &[f64], &[f64]) {
-    let d = d as usize;
-    let (lo, rest) = regs.split_at_mut(d * CHUNK);
-    let (dst, hi) = rest.split_at_mut(CHUNK);
-    (dst, lo, hi)
+/// Registers below the destination `d` are in `lo`, those above in `hi`.
+#[inline(always)]
+fn source<'a>(
+    lo: &'a [f64],
+    hi: &'a [f64],
+    d: usize,
+    ext: &[&'a [f64]],
+    at: usize,
+    s: Src,
+) -> &'a [f64; CHUNK] {
+    let s = match s {
+        Src::Reg(r) => {
+            let r = r as usize;
+            if r < d {
+                &lo[r * CHUNK..(r + 1) * CHUNK]
+            } else {
+                &hi[(r - d - 1) * CHUNK..(r - d) * CHUNK]
+            }
+        }
+        Src::Ext(e) => &ext[e as usize][at..at + CHUNK],
+    };
+    lane(s)
 }
 
-fn pick<'a>(lo: &'a [f64], hi: &'a [f64], d: u32, r: u32) -> &'a [f64] {
-    let (d, r) = (d as usize, r as usize);
-    if r < d {
-        &lo[r * CHUNK..(r + 1) * CHUNK]
-    } else {
-        &hi[(r - d - 1) * CHUNK..(r - d) * CHUNK]
+/// A chunk-long slice as an array, so the loops below have a constant trip count.
+#[inline(always)]
+fn lane(s: &[f64]) -> &[f64; CHUNK] {
+    match s.first_chunk() {
+        Some(a) => a,
+        None => unreachable!("operand shorter than a chunk"),
+    }
+}
+
+#[inline(always)]
+fn lane_mut(s: &mut [f64]) -> &mut [f64; CHUNK] {
+    match s.first_chunk_mut() {
+        Some(a) => a,
+        None => unreachable!("destination shorter than a chunk"),
     }
 }
 
@@ -207,11 +309,26 @@ macro_rules! lanes2 {
 }
 
 #[inline(never)]
-fn exec(regs: &mut [f64], ins: Instr) {
-    match ins {
-        Instr::Un(op, d, a) => {
-            let (dst, lo, hi) = split(regs, d);
-            let a = pick(lo, hi, d, a);
+fn exec(regs: &mut [f64], ext: &[&[f64]], outs: &mut [&mut [f64]], at: usize, ins: &Instr) {
+    let d = match *ins {
+        Instr::Un(_, d, _) | Instr::Bin(_, d, _, _) | Instr::Sel(d, _, _, _) => d,
+    };
+    // The destination is split off the register file (or is an output), so it never aliases a
+    // source.
+    let (dst, lo, hi, dr): (&mut [f64], &[f64], &[f64], usize) = match d {
+        Dst::Reg(r) => {
+            let r = r as usize;
+            let (lo, rest) = regs.split_at_mut(r * CHUNK);
+            let (dst, hi) = rest.split_at_mut(CHUNK);
+            (dst, lo, hi, r)
+        }
+        Dst::Out(k) => (&mut outs[k as usize][at..at + CHUNK], regs, &[], usize::MAX),
+    };
+    let dst = lane_mut(dst);
+    let src = |s| source(lo, hi, dr, ext, at, s);
+    match *ins {
+        Instr::Un(op, _, a) => {
+            let a = src(a);
             // The common cases get their own loop so they vectorise; the rest share one.
             match op {
                 Un::Neg => lanes1!(dst, a, |x| -x),
@@ -222,9 +339,8 @@ fn exec(regs: &mut [f64], ins: Instr) {
                 _ => lanes1!(dst, a, |x| ops::un(op, x)),
             }
         }
-        Instr::Bin(op, d, a, b) => {
-            let (dst, lo, hi) = split(regs, d);
-            let (a, b) = (pick(lo, hi, d, a), pick(lo, hi, d, b));
+        Instr::Bin(op, _, a, b) => {
+            let (a, b) = (src(a), src(b));
             match op {
                 Bin::Add => lanes2!(dst, a, b, |x, y| x + y),
                 Bin::Sub => lanes2!(dst, a, b, |x, y| x - y),
@@ -238,9 +354,8 @@ fn exec(regs: &mut [f64], ins: Instr) {
                 _ => lanes2!(dst, a, b, |x, y| ops::bin(op, x, y)),
             }
         }
-        Instr::Sel(d, c, a, b) => {
-            let (dst, lo, hi) = split(regs, d);
-            let (c, a, b) = (pick(lo, hi, d, c), pick(lo, hi, d, a), pick(lo, hi, d, b));
+        Instr::Sel(_, c, a, b) => {
+            let (c, a, b) = (src(c), src(a), src(b));
             for (((o, &c), &x), &y) in dst.iter_mut().zip(c).zip(a).zip(b) {
                 *o = ops::select(c, x, y);
             }
@@ -346,7 +461,6 @@ impl BatchKernel for GraphKernel {
         if n == 0 {
             return Ok(());
         }
-        jac.fill(0.0);
         let mut jac_rows: Vec<Option<&mut [f64]>> = jac.chunks_mut(n).map(Some).collect();
         let mut sinks: Vec<&mut [f64]> = out.chunks_mut(n).collect();
         for &(o, s) in &self.jac_slots {
@@ -357,7 +471,148 @@ impl BatchKernel for GraphKernel {
                 sinks.push(row);
             }
         }
+        // Only the structural zeros need clearing; the tape writes every other row in full.
+        for row in jac_rows.into_iter().flatten() {
+            row.fill(0.0);
+        }
         self.full.run(input, &mut sinks, scratch);
         Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A pseudo-random graph mixing every operation, constants and inputs; outputs include
+    /// repeated nodes, inputs, constants and nodes that other nodes also read.
+    fn random_graph(seed: u64) -> (Graph, Vec<NodeId>) {
+        let mut state = seed;
+        let mut next = move |m: usize| {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            (state % m as u64) as usize
+        };
+        let uns = [
+            Un::Neg,
+            Un::Not,
+            Un::Exp,
+            Un::Ln,
+            Un::Log10,
+            Un::Sqrt,
+            Un::Abs,
+            Un::Tanh,
+            Un::Floor,
+            Un::Ceil,
+            Un::Sin,
+            Un::Cos,
+            Un::Signum,
+            Un::Trunc,
+        ];
+        let bins = [
+            Bin::Add,
+            Bin::Sub,
+            Bin::Mul,
+            Bin::Div,
+            Bin::Rem,
+            Bin::Pow,
+            Bin::LogBase,
+            Bin::Min,
+            Bin::Max,
+            Bin::Lt,
+            Bin::Le,
+            Bin::Gt,
+            Bin::Ge,
+            Bin::Eq,
+            Bin::Ne,
+            Bin::And,
+            Bin::Or,
+            Bin::RawLe,
+            Bin::RawGe,
+        ];
+        let mut g = Graph::new();
+        let mut pool = vec![
+            g.input(Input::Species(0)),
+            g.input(Input::Species(1)),
+            g.input(Input::Species(2)),
+            g.input(Input::X),
+            g.input(Input::Y),
+            g.input(Input::T),
+            g.konst(0.5),
+            g.konst(-2.0),
+            g.konst(3.0),
+        ];
+        for _ in 0..120 {
+            let pick = |r: usize, pool: &Vec<NodeId>| pool[pool.len() - 1 - r % pool.len().min(12)];
+            let (a, b, c) = (
+                pick(next(64), &pool),
+                pick(next(64), &pool),
+                pick(next(64), &pool),
+            );
+            let n = match next(10) {
+                0..=1 => g.un(uns[next(uns.len())], a),
+                2..=4 => g.bin(bins[next(4)], a, b),
+                5..=7 => g.bin(bins[next(bins.len())], a, b),
+                8 => {
+                    let k = g.konst(next(7) as f64 - 3.0);
+                    g.bin(bins[next(4)], a, k)
+                }
+                _ => g.select(c, a, b),
+            };
+            pool.push(n);
+        }
+        let mut outs: Vec<NodeId> = (0..10).map(|_| pool[next(pool.len())]).collect();
+        outs.push(pool[pool.len() - 1]);
+        outs.push(outs[0]);
+        outs.push(pool[0]);
+        outs.push(pool[6]);
+        outs.push(pool[5]);
+        (g, outs)
+    }
+
+    fn same(a: f64, b: f64) -> bool {
+        a.to_bits() == b.to_bits() || (a.is_nan() && b.is_nan())
+    }
+
+    #[test]
+    fn tape_matches_point_evaluation_bit_for_bit() {
+        for seed in 1..40u64 {
+            let (g, outs) = random_graph(seed.wrapping_mul(0x9E37_79B9_7F4A_7C15));
+            let tape = Tape::build(&g, &outs);
+            // Lengths below, at and above a chunk, with and without a partial last chunk.
+            for n in [1, CHUNK - 1, CHUNK, 2 * CHUNK + 5] {
+                let sp: Vec<Vec<f64>> = (0..3)
+                    .map(|s| {
+                        (0..n)
+                            .map(|i| ((i * 7 + s * 3) % 11) as f64 * 0.37 - 1.5)
+                            .collect()
+                    })
+                    .collect();
+                let x: Vec<f64> = (0..n).map(|i| (i % 5) as f64 - 2.0).collect();
+                let y: Vec<f64> = (0..n).map(|i| (i % 3) as f64 * 0.25).collect();
+                let refs: Vec<&[f64]> = sp.iter().map(Vec::as_slice).collect();
+                let input = KernelInput {
+                    species: &refs,
+                    x: &x,
+                    y: &y,
+                    t: 0.75,
+                };
+                let mut out = vec![f64::NAN; outs.len() * n];
+                let mut sinks: Vec<&mut [f64]> = out.chunks_mut(n).collect();
+                tape.run(&input, &mut sinks, &mut Scratch::new());
+                for (k, &o) in outs.iter().enumerate() {
+                    for i in 0..n {
+                        let u = [sp[0][i], sp[1][i], sp[2][i]];
+                        let want = g.eval_point(o, &u, x[i], y[i], 0.75);
+                        let got = out[k * n + i];
+                        assert!(
+                            same(got, want),
+                            "seed {seed} n {n} output {k} node {i}: {got:e} vs {want:e}"
+                        );
+                    }
+                }
+            }
+        }
     }
 }
