@@ -32,11 +32,46 @@ enum Dst {
     Out(u32),
 }
 
+/// The four arithmetic operations, which fused instructions combine.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Ar {
+    Add,
+    Sub,
+    Mul,
+    Div,
+}
+
+impl Ar {
+    fn of(op: Bin) -> Option<Ar> {
+        match op {
+            Bin::Add => Some(Ar::Add),
+            Bin::Sub => Some(Ar::Sub),
+            Bin::Mul => Some(Ar::Mul),
+            Bin::Div => Some(Ar::Div),
+            _ => None,
+        }
+    }
+}
+
 #[derive(Clone, Copy, Debug)]
 enum Instr {
     Un(Un, Dst, Src),
     Bin(Bin, Dst, Src, Src),
     Sel(Dst, Src, Src, Src),
+    /// `Fuse(p, q, false, d, x, y, z)` is `d = (x p y) q z`; with `true`, `d = z q (x p y)`.
+    /// Each operation rounds separately, exactly as two instructions would.
+    Fuse(Ar, Ar, bool, Dst, Src, Src, Src),
+}
+
+impl Instr {
+    fn dst(&self) -> Dst {
+        match *self {
+            Instr::Un(_, d, _)
+            | Instr::Bin(_, d, _, _)
+            | Instr::Sel(d, ..)
+            | Instr::Fuse(_, _, _, d, ..) => d,
+        }
+    }
 }
 
 /// A compiled instruction tape.
@@ -68,12 +103,60 @@ impl Tape {
         let order: Vec<NodeId> = (0..g.len() as NodeId)
             .filter(|&n| needed[n as usize])
             .collect();
-        let mut last_use = vec![0usize; g.len()];
         let mut uses = vec![0usize; g.len()];
-        for (k, &n) in order.iter().enumerate() {
+        for &n in &order {
             for o in g.operands(n) {
-                last_use[o as usize] = k;
                 uses[o as usize] += 1;
+            }
+        }
+        let mut is_output = vec![false; g.len()];
+        for &o in outputs {
+            is_output[o as usize] = true;
+        }
+        // An arithmetic node read once, by another arithmetic node, is computed inside its user
+        // (one fused instruction, still two roundings), unless it already fused one itself.
+        let mut absorbed = vec![false; g.len()];
+        let mut fused = vec![None; g.len()];
+        for &n in &order {
+            let Node::Bin(op, a, b) = g.node(n) else {
+                continue;
+            };
+            if Ar::of(op).is_none() {
+                continue;
+            }
+            let candidate = |o: NodeId| {
+                let o = o as usize;
+                uses[o] == 1
+                    && !is_output[o]
+                    && fused[o].is_none()
+                    && matches!(g.node(o as NodeId), Node::Bin(p, ..) if Ar::of(p).is_some())
+            };
+            if candidate(a) {
+                absorbed[a as usize] = true;
+                fused[n as usize] = Some(false);
+            } else if candidate(b) {
+                absorbed[b as usize] = true;
+                fused[n as usize] = Some(true);
+            }
+        }
+        // Operands as the emitted instructions read them.
+        let effective = |n: NodeId| -> Vec<NodeId> {
+            g.operands(n)
+                .flat_map(|o| {
+                    if absorbed[o as usize] {
+                        g.operands(o).collect::<Vec<_>>()
+                    } else {
+                        vec![o]
+                    }
+                })
+                .collect()
+        };
+        let mut last_use = vec![0usize; g.len()];
+        for (k, &n) in order.iter().enumerate() {
+            if !absorbed[n as usize] {
+                for o in effective(n) {
+                    last_use[o as usize] = k;
+                }
             }
         }
         // An output computed by an instruction that nothing else reads is written in place.
@@ -105,12 +188,19 @@ impl Tape {
             *n_regs - 1
         }
         for (k, &n) in order.iter().enumerate() {
+            if absorbed[n as usize] {
+                continue;
+            }
             let node = g.node(n);
             let s = |o: NodeId| src[o as usize];
             let place = in_place[n as usize];
             let mut dst = || match place {
                 k if k < u32::MAX - 1 => Dst::Out(k),
                 _ => Dst::Reg(free.pop().unwrap_or_else(|| fresh(&mut n_regs))),
+            };
+            let inner = |o: NodeId| match g.node(o) {
+                Node::Bin(p, x, y) => Ar::of(p).map(|p| (p, s(x), s(y))),
+                _ => None,
             };
             let (ins, d) = match node {
                 Node::Const(bits) => {
@@ -133,9 +223,22 @@ impl Tape {
                     (Some(Instr::Un(op, d, a)), as_src(d))
                 }
                 Node::Bin(op, a, b) => {
-                    let (a, b) = (s(a), s(b));
-                    let d = dst();
-                    (Some(Instr::Bin(op, d, a, b)), as_src(d))
+                    let fuse = match (fused[n as usize], Ar::of(op)) {
+                        (Some(false), Some(q)) => inner(a).map(|(p, x, y)| (p, q, x, y, s(b))),
+                        (Some(true), Some(q)) => inner(b).map(|(p, x, y)| (p, q, x, y, s(a))),
+                        _ => None,
+                    };
+                    let ins = match fuse {
+                        Some((p, q, x, y, z)) => {
+                            let right = fused[n as usize] == Some(true);
+                            Instr::Fuse(p, q, right, dst(), x, y, z)
+                        }
+                        None => {
+                            let (a, b) = (s(a), s(b));
+                            Instr::Bin(op, dst(), a, b)
+                        }
+                    };
+                    (Some(ins), as_src(ins.dst()))
                 }
                 Node::Select(c, a, b) => {
                     let (c, a, b) = (s(c), s(a), s(b));
@@ -147,7 +250,7 @@ impl Tape {
             src[n as usize] = d;
             // Operands whose last use is here go back to the pool only now, so a destination
             // never aliases its own operands.
-            for o in g.operands(n) {
+            for o in effective(n) {
                 let o = o as usize;
                 if last_use[o] == k
                     && !matches!(g.node(o as NodeId), Node::Const(_) | Node::Input(_))
@@ -310,9 +413,7 @@ macro_rules! lanes2 {
 
 #[inline(never)]
 fn exec(regs: &mut [f64], ext: &[&[f64]], outs: &mut [&mut [f64]], at: usize, ins: &Instr) {
-    let d = match *ins {
-        Instr::Un(_, d, _) | Instr::Bin(_, d, _, _) | Instr::Sel(d, _, _, _) => d,
-    };
+    let d = ins.dst();
     // The destination is split off the register file (or is an output), so it never aliases a
     // source.
     let (dst, lo, hi, dr): (&mut [f64], &[f64], &[f64], usize) = match d {
@@ -360,6 +461,65 @@ fn exec(regs: &mut [f64], ext: &[&[f64]], outs: &mut [&mut [f64]], at: usize, in
                 *o = ops::select(c, x, y);
             }
         }
+        Instr::Fuse(p, q, right, _, x, y, z) => {
+            let (x, y, z) = (src(x), src(y), src(z));
+            fused(dst, p, q, right, x, y, z);
+        }
+    }
+}
+
+#[inline(always)]
+fn ar<const P: u8>(x: f64, y: f64) -> f64 {
+    match P {
+        0 => x + y,
+        1 => x - y,
+        2 => x * y,
+        _ => x / y,
+    }
+}
+
+/// `d = (x p y) q z`, or `d = z q (x p y)` when `R`; one loop per combination.
+#[inline(always)]
+fn fused_loop<const P: u8, const Q: u8, const R: bool>(
+    d: &mut [f64; CHUNK],
+    x: &[f64; CHUNK],
+    y: &[f64; CHUNK],
+    z: &[f64; CHUNK],
+) {
+    for (((o, &x), &y), &z) in d.iter_mut().zip(x).zip(y).zip(z) {
+        let t = ar::<P>(x, y);
+        *o = if R { ar::<Q>(z, t) } else { ar::<Q>(t, z) };
+    }
+}
+
+fn fused(
+    d: &mut [f64; CHUNK],
+    p: Ar,
+    q: Ar,
+    right: bool,
+    x: &[f64; CHUNK],
+    y: &[f64; CHUNK],
+    z: &[f64; CHUNK],
+) {
+    macro_rules! by_q {
+        ($p:literal) => {
+            match (q, right) {
+                (Ar::Add, false) => fused_loop::<$p, 0, false>(d, x, y, z),
+                (Ar::Sub, false) => fused_loop::<$p, 1, false>(d, x, y, z),
+                (Ar::Mul, false) => fused_loop::<$p, 2, false>(d, x, y, z),
+                (Ar::Div, false) => fused_loop::<$p, 3, false>(d, x, y, z),
+                (Ar::Add, true) => fused_loop::<$p, 0, true>(d, x, y, z),
+                (Ar::Sub, true) => fused_loop::<$p, 1, true>(d, x, y, z),
+                (Ar::Mul, true) => fused_loop::<$p, 2, true>(d, x, y, z),
+                (Ar::Div, true) => fused_loop::<$p, 3, true>(d, x, y, z),
+            }
+        };
+    }
+    match p {
+        Ar::Add => by_q!(0),
+        Ar::Sub => by_q!(1),
+        Ar::Mul => by_q!(2),
+        Ar::Div => by_q!(3),
     }
 }
 
