@@ -12,7 +12,7 @@ use crate::graph::ops;
 use crate::graph::{Bin, Graph, Input, Node, NodeId, Un};
 
 /// Nodes per chunk.
-pub const CHUNK: usize = 64;
+pub const CHUNK: usize = 128;
 
 /// Where an operand is read from.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
