@@ -56,6 +56,12 @@ pub fn run(args: &MeshArgs) -> Result<(), CliError> {
     if let Some(p) = &args.png {
         check_extension(p, "png", "--png")?;
     }
+    if !(16..=16384).contains(&args.png_pixels) {
+        return Err(CliError::input(format!(
+            "--png-pixels must be between 16 and 16384, got {}",
+            args.png_pixels
+        )));
+    }
     let spec = args.plate.spec()?;
     spec.check_numbers().map_err(CliError::input)?;
     let options = args.meshing.options(&spec)?;

@@ -269,7 +269,16 @@ impl MeshingArgs {
                 }
                 MeshOptions::size_for_max_area(a)
             }
-            (None, None) => extent(&spec.outer) / 50.0,
+            (None, None) => {
+                let h = extent(&spec.outer) / 50.0;
+                if !(h.is_finite() && h > 0.0) {
+                    return Err(CliError::input(format!(
+                        "the plate is too large to compute with: its extent is {:e}; express it in another length unit",
+                        extent(&spec.outer)
+                    )));
+                }
+                h
+            }
         };
         if !(size.is_finite() && size > 0.0) {
             return Err(CliError::input(format!(

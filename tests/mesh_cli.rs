@@ -311,9 +311,21 @@ fn node_budget_is_enforced() {
             "--size",
             "0.01",
             "--max-nodes",
+            "50000",
+        ],
+        "node budget is 50000",
+    );
+    // Even the boundary alone is over budget: refused before any allocation.
+    fails(
+        &[
+            "--plate",
+            "circle:10",
+            "--size",
+            "0.01",
+            "--max-nodes",
             "5000",
         ],
-        "node budget is 5000",
+        "the plate's boundary alone needs about 6.283e3 nodes",
     );
     // Close to the estimate: refinement itself stops at the budget and says so.
     fails(

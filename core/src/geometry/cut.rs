@@ -75,6 +75,7 @@ impl Cut {
         outer: &Ring,
         holes: &[Ring],
         h: &dyn Fn(Point) -> f64,
+        max_nodes: usize,
     ) -> Result<(Ring, Vec<Ring>), GeometryError> {
         // Cutting polygons reach just beyond the plate: the clipper snaps to a grid scaled to the
         // inputs' extent, so a needlessly huge polygon would cost precision.
@@ -148,12 +149,23 @@ impl Cut {
             n => return Err(GeometryError::CutSplits { cut: k, pieces: n }),
         }
         let piece = pieces[0];
-        let outer = respace(&from_line_string(piece.exterior()), h);
-        let holes = piece
-            .interiors()
-            .iter()
-            .map(|r| respace(&from_line_string(r), h))
-            .collect();
+        // A cut along an existing edge leaves a zero-width sliver that the clipper, which snaps
+        // to a grid about 1e-8 of the extent fine, keeps as a speck of area: its mean width
+        // 2·area/perimeter is far below anything a user draws on purpose.
+        let perimeter = super::polyline_length(&from_line_string(piece.exterior()), true);
+        let width = 2.0 * geo::Area::unsigned_area(piece) / perimeter.max(f64::MIN_POSITIVE);
+        if width <= 1e-7 * diag {
+            return Err(GeometryError::CutRemovesAll { cut: k });
+        }
+        let too_many = |e: super::TooManyNodes| GeometryError::TooManyBoundaryNodes {
+            needed: e.needed,
+            budget: max_nodes,
+        };
+        let outer = respace(&from_line_string(piece.exterior()), h, max_nodes).map_err(too_many)?;
+        let mut holes = Vec::new();
+        for r in piece.interiors() {
+            holes.push(respace(&from_line_string(r), h, max_nodes).map_err(too_many)?);
+        }
         Ok((outer, holes))
     }
 }
@@ -181,38 +193,34 @@ fn from_line_string(ls: &LineString<f64>) -> Ring {
 }
 
 /// Removes nodes that the cut left crowded next to a new corner, then splits the long straight
-/// edges the cut made.
-fn respace(ring: &Ring, h: &dyn Fn(Point) -> f64) -> Ring {
-    let mut pts = ring.clone();
-    loop {
-        let n = pts.len();
-        if n <= 3 {
-            break;
+/// edges the cut made. Only nearly straight nodes are dropped: a corner is part of the plate's
+/// shape however close it is to its neighbours (a thin strip keeps its four corners).
+fn respace(ring: &Ring, h: &dyn Fn(Point) -> f64, cap: usize) -> Result<Ring, super::TooManyNodes> {
+    let n = ring.len();
+    let flat = |k: usize| {
+        let (a, b, c) = (ring[(k + n - 1) % n], ring[k], ring[(k + 1) % n]);
+        let u = [b[0] - a[0], b[1] - a[1]];
+        let v = [c[0] - b[0], c[1] - b[1]];
+        (u[0] * v[1] - u[1] * v[0])
+            .atan2(u[0] * v[0] + u[1] * v[1])
+            .abs()
+            < 10f64.to_radians()
+    };
+    let mut pts: Ring = Vec::with_capacity(n);
+    for k in 0..n {
+        let p = ring[k];
+        let near = 0.3 * h(p);
+        let crowded =
+            pts.last().is_some_and(|q| dist(*q, p) < near) || dist(ring[(k + 1) % n], p) < near;
+        if n > 3 && crowded && flat(k) {
+            continue;
         }
-        let mut removed = false;
-        for i in 0..n {
-            let j = (i + 1) % n;
-            if dist(pts[i], pts[j]) < 0.3 * h(pts[i]) {
-                // Drop whichever of the two is the flatter (less of a corner).
-                let turn = |k: usize| {
-                    let (a, b, c) = (pts[(k + n - 1) % n], pts[k], pts[(k + 1) % n]);
-                    let u = [b[0] - a[0], b[1] - a[1]];
-                    let v = [c[0] - b[0], c[1] - b[1]];
-                    (u[0] * v[1] - u[1] * v[0])
-                        .atan2(u[0] * v[0] + u[1] * v[1])
-                        .abs()
-                };
-                let drop = if turn(i) < turn(j) { i } else { j };
-                pts.remove(drop);
-                removed = true;
-                break;
-            }
-        }
-        if !removed {
-            break;
-        }
+        pts.push(p);
     }
-    subdivide_polygon(&pts, h)
+    if pts.len() < 3 {
+        pts = ring.clone();
+    }
+    subdivide_polygon(&pts, h, cap)
 }
 
 #[cfg(test)]
@@ -240,7 +248,7 @@ mod tests {
                 offset: d,
             }],
         };
-        let plate = spec.discretise(&|_| 0.02).unwrap();
+        let plate = spec.discretise(&|_| 0.02, usize::MAX).unwrap();
         let theta = 2.0 * (d / r).acos();
         let cap = 0.5 * r * r * (theta - theta.sin());
         let exact = PI * r * r - cap;
@@ -264,7 +272,7 @@ mod tests {
                 to_deg: 90.0,
             }],
         };
-        let plate = spec.discretise(&|_| 0.01).unwrap();
+        let plate = spec.discretise(&|_| 0.01, usize::MAX).unwrap();
         let exact = 0.75 * PI;
         assert!((plate.polygon_area() - exact).abs() / exact < 1e-3);
     }
@@ -280,7 +288,7 @@ mod tests {
             }],
         };
         assert_eq!(
-            all.discretise(&|_| 0.1).unwrap_err(),
+            all.discretise(&|_| 0.1, usize::MAX).unwrap_err(),
             GeometryError::CutRemovesAll { cut: 1 }
         );
         // A thin bar across a dumbbell-like rectangle pair: a wedge splitting a U-shape.
@@ -305,7 +313,7 @@ mod tests {
             }],
         };
         assert_eq!(
-            split.discretise(&|_| 0.1).unwrap_err(),
+            split.discretise(&|_| 0.1, usize::MAX).unwrap_err(),
             GeometryError::CutSplits { cut: 1, pieces: 2 }
         );
         let bad = Cut::Wedge {

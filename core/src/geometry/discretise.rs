@@ -9,8 +9,19 @@ use std::f64::consts::PI;
 /// A closed polyline (last point joins the first), counter-clockwise for outer outlines.
 pub type Ring = Vec<Point>;
 
+/// A ring would need more nodes than the caller allows (about `needed`).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct TooManyNodes {
+    /// Nodes the ring would need (may be infinite for absurd sizes).
+    pub needed: f64,
+}
+
 /// Samples a parametric closed curve `p(t)`, `t ∈ [0, 1)`, with spacing `h(p)`.
-fn sample_closed_curve(curve: &dyn Fn(f64) -> Point, h: &dyn Fn(Point) -> f64) -> Ring {
+fn sample_closed_curve(
+    curve: &dyn Fn(f64) -> Point,
+    h: &dyn Fn(Point) -> f64,
+    cap: usize,
+) -> Result<Ring, TooManyNodes> {
     // Integrate the number of target lengths along the curve on a fine uniform parameter grid,
     // then place nodes at equal steps of that count (equidistribution of arclength / h).
     let fine = 4096;
@@ -25,6 +36,10 @@ fn sample_closed_curve(curve: &dyn Fn(f64) -> Point, h: &dyn Fn(Point) -> f64) -
         prev = p;
     }
     let total = cum[fine];
+    // Checked before allocating: an absurdly small size must fail, not exhaust memory.
+    if total.is_nan() || total > cap as f64 {
+        return Err(TooManyNodes { needed: total });
+    }
     let n = (total.round() as usize).max(8);
     let mut ring = Vec::with_capacity(n);
     let mut j = 0;
@@ -41,12 +56,16 @@ fn sample_closed_curve(curve: &dyn Fn(f64) -> Point, h: &dyn Fn(Point) -> f64) -
         };
         ring.push(curve((j as f64 + frac) / fine as f64));
     }
-    ring
+    Ok(ring)
 }
 
 /// Subdivides each straight segment of a closed polygon so no piece is longer than the local
 /// target length; corners are kept exactly.
-pub fn subdivide_polygon(corners: &[Point], h: &dyn Fn(Point) -> f64) -> Ring {
+pub fn subdivide_polygon(
+    corners: &[Point],
+    h: &dyn Fn(Point) -> f64,
+    cap: usize,
+) -> Result<Ring, TooManyNodes> {
     let n = corners.len();
     let mut ring = Vec::new();
     for i in 0..n {
@@ -64,6 +83,16 @@ pub fn subdivide_polygon(corners: &[Point], h: &dyn Fn(Point) -> f64) -> Ring {
             cum.push(last + len / samples as f64 / h(p));
         }
         let total = cum[samples];
+        // `ring` already holds this segment's start, which is one of its `total` pieces.
+        let so_far = (ring.len() - 1) as f64;
+        if total.is_nan() || so_far + total > cap as f64 {
+            let rest: f64 = (i + 1..n)
+                .map(|k| dist(corners[k], corners[(k + 1) % n]) / h(corners[k]))
+                .sum();
+            return Err(TooManyNodes {
+                needed: so_far + total + rest,
+            });
+        }
         let pieces = total.round().max(1.0) as usize;
         let mut j = 0;
         for s in 1..pieces {
@@ -81,11 +110,15 @@ pub fn subdivide_polygon(corners: &[Point], h: &dyn Fn(Point) -> f64) -> Ring {
             ring.push([a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1])]);
         }
     }
-    ring
+    Ok(ring)
 }
 
 /// Closed polylines of a shape: one ring, or two for an annulus (outer first, then the hole).
-pub fn shape_rings(shape: &Shape, h: &dyn Fn(Point) -> f64) -> Vec<Ring> {
+pub fn shape_rings(
+    shape: &Shape,
+    h: &dyn Fn(Point) -> f64,
+    cap: usize,
+) -> Result<Vec<Ring>, TooManyNodes> {
     match shape {
         Shape::Circle { centre, radius } => shape_rings(
             &Shape::Ellipse {
@@ -94,6 +127,7 @@ pub fn shape_rings(shape: &Shape, h: &dyn Fn(Point) -> f64) -> Vec<Ring> {
                 semi_y: *radius,
             },
             h,
+            cap,
         ),
         Shape::Ellipse {
             centre,
@@ -101,7 +135,7 @@ pub fn shape_rings(shape: &Shape, h: &dyn Fn(Point) -> f64) -> Vec<Ring> {
             semi_y,
         } => {
             let (c, a, b) = (*centre, *semi_x, *semi_y);
-            vec![sample_closed_curve(
+            Ok(vec![sample_closed_curve(
                 &|t| {
                     [
                         c[0] + a * (2.0 * PI * t).cos(),
@@ -109,7 +143,8 @@ pub fn shape_rings(shape: &Shape, h: &dyn Fn(Point) -> f64) -> Vec<Ring> {
                     ]
                 },
                 h,
-            )]
+                cap,
+            )?])
         }
         Shape::Rectangle {
             centre,
@@ -123,7 +158,7 @@ pub fn shape_rings(shape: &Shape, h: &dyn Fn(Point) -> f64) -> Vec<Ring> {
                 [c[0] + w, c[1] + hh],
                 [c[0] - w, c[1] + hh],
             ];
-            vec![subdivide_polygon(&corners, h)]
+            Ok(vec![subdivide_polygon(&corners, h, cap)?])
         }
         Shape::Annulus {
             centre,
@@ -136,15 +171,18 @@ pub fn shape_rings(shape: &Shape, h: &dyn Fn(Point) -> f64) -> Vec<Ring> {
                     radius: *outer,
                 },
                 h,
-            );
+                cap,
+            )?;
+            let used = rings[0].len();
             rings.extend(shape_rings(
                 &Shape::Circle {
                     centre: *centre,
                     radius: *inner,
                 },
                 h,
-            ));
-            rings
+                cap.saturating_sub(used),
+            )?);
+            Ok(rings)
         }
         Shape::Polygon { points } => {
             let mut corners = points.clone();
@@ -152,7 +190,7 @@ pub fn shape_rings(shape: &Shape, h: &dyn Fn(Point) -> f64) -> Vec<Ring> {
             if corners.len() > 1 && corners.first() == corners.last() {
                 corners.pop();
             }
-            vec![subdivide_polygon(&corners, h)]
+            Ok(vec![subdivide_polygon(&corners, h, cap)?])
         }
     }
 }
@@ -169,7 +207,9 @@ mod tests {
                 radius: 3.0,
             },
             &|_| 0.1,
+            usize::MAX,
         )
+        .unwrap()
         .remove(0);
         // 2π·3 / 0.1 ≈ 188.5 segments.
         assert_eq!(ring.len(), 188);
@@ -185,10 +225,26 @@ mod tests {
     #[test]
     fn polygon_corners_are_kept_and_segments_split() {
         let sq = [[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0]];
-        let ring = subdivide_polygon(&sq, &|_| 0.25);
+        let ring = subdivide_polygon(&sq, &|_| 0.25, usize::MAX).unwrap();
         assert_eq!(ring.len(), 16);
         for c in sq {
             assert!(ring.contains(&c));
         }
+    }
+
+    #[test]
+    fn absurd_sizes_fail_before_allocating() {
+        let disk = Shape::Circle {
+            centre: [0.0, 0.0],
+            radius: 10.0,
+        };
+        let err = shape_rings(&disk, &|_| 1e-300, 1000).unwrap_err();
+        assert!(err.needed > 1e300);
+        let sq = [[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0]];
+        assert!(subdivide_polygon(&sq, &|_| 1e-300, 1000).is_err());
+        assert_eq!(
+            subdivide_polygon(&sq, &|_| 0.25, 15).unwrap_err().needed,
+            16.0
+        );
     }
 }

@@ -8,7 +8,7 @@ mod shape;
 mod validate;
 
 pub use cut::Cut;
-pub use discretise::{shape_rings, subdivide_polygon, Ring};
+pub use discretise::{shape_rings, subdivide_polygon, Ring, TooManyNodes};
 pub use outline_file::{parse_outline, read_outline};
 pub use shape::{dist, polyline_length, ramanujan_perimeter, signed_area, Point, Shape};
 pub use validate::{check_plate, point_in_ring, LoopRole};
@@ -83,6 +83,22 @@ pub enum GeometryError {
         cut: usize,
         /// How many pieces.
         pieces: usize,
+    },
+    /// The boundary alone needs more nodes than allowed at the requested edge length.
+    #[error("the plate's boundary alone needs about {needed:.3e} nodes at this edge length, more than the node budget of {budget}; use a larger edge length or raise the budget")]
+    TooManyBoundaryNodes {
+        /// Nodes needed (may be infinite for absurd sizes).
+        needed: f64,
+        /// The budget.
+        budget: usize,
+    },
+    /// The plate is so far from the origin that its coordinates cannot resolve its shape.
+    #[error("the plate ({extent:.3e} across) lies {distance:.3e} from the origin; at that distance coordinates cannot resolve it: move it nearer to (0, 0)")]
+    TooFarFromOrigin {
+        /// Size of the plate.
+        extent: f64,
+        /// Largest coordinate magnitude.
+        distance: f64,
     },
     /// An outline file could not be read.
     #[error("{path}: cannot read outline file: {reason}", path = path.display())]
@@ -188,15 +204,32 @@ impl PlateSpec {
         Ok(())
     }
 
-    /// Discretises every loop at the local target edge length `h(x)` and checks the result.
-    pub fn discretise(&self, h: &dyn Fn(Point) -> f64) -> Result<Plate, GeometryError> {
+    /// Discretises every loop at the local target edge length `h(x)`, with at most
+    /// `max_nodes` boundary nodes in all, and checks the result.
+    pub fn discretise(
+        &self,
+        h: &dyn Fn(Point) -> f64,
+        max_nodes: usize,
+    ) -> Result<Plate, GeometryError> {
         self.check_numbers()?;
-        let mut outer_rings = shape_rings(&self.outer, h);
+        let too_many = |e: TooManyNodes| GeometryError::TooManyBoundaryNodes {
+            needed: e.needed,
+            budget: max_nodes,
+        };
+        let mut outer_rings = shape_rings(&self.outer, h, max_nodes).map_err(too_many)?;
+        let mut used: usize = outer_rings.iter().map(Vec::len).sum();
         let mut outer = outer_rings.remove(0);
         let mut holes = outer_rings;
         for hole in &self.holes {
-            holes.extend(shape_rings(hole, h));
+            let rings = shape_rings(hole, h, max_nodes.saturating_sub(used)).map_err(|e| {
+                too_many(TooManyNodes {
+                    needed: e.needed + used as f64,
+                })
+            })?;
+            used += rings.iter().map(Vec::len).sum::<usize>();
+            holes.extend(rings);
         }
+        check_resolution(&outer)?;
         orient_rings(&mut outer, &mut holes);
         check_plate(&outer, &holes)?;
         let no_cuts = self.cuts.is_empty();
@@ -208,7 +241,7 @@ impl PlateSpec {
             (None, None)
         };
         for (k, c) in self.cuts.iter().enumerate() {
-            let (o, hs) = c.apply(k + 1, &outer, &holes, h)?;
+            let (o, hs) = c.apply(k + 1, &outer, &holes, h, max_nodes)?;
             outer = o;
             holes = hs;
             orient_rings(&mut outer, &mut holes);
@@ -221,6 +254,27 @@ impl PlateSpec {
             exact_perimeter,
         })
     }
+}
+
+/// Refuses plates whose size is below what their coordinates can resolve: with |x| ~ D the
+/// spacing of doubles is about 2.2e-16·D, so a plate must span many such steps.
+fn check_resolution(outer: &Ring) -> Result<(), GeometryError> {
+    let (mut lo, mut hi, mut far) = ([f64::MAX; 2], [f64::MIN; 2], 0.0_f64);
+    for p in outer {
+        for d in 0..2 {
+            lo[d] = lo[d].min(p[d]);
+            hi[d] = hi[d].max(p[d]);
+            far = far.max(p[d].abs());
+        }
+    }
+    let extent = (hi[0] - lo[0]).max(hi[1] - lo[1]);
+    if extent < 1e-9 * far {
+        return Err(GeometryError::TooFarFromOrigin {
+            extent,
+            distance: far,
+        });
+    }
+    Ok(())
 }
 
 /// Outer loop counter-clockwise, holes clockwise.
@@ -250,7 +304,7 @@ mod tests {
             holes: vec![],
             cuts: vec![],
         };
-        let plate = spec.discretise(&|_| 0.05).unwrap();
+        let plate = spec.discretise(&|_| 0.05, usize::MAX).unwrap();
         assert_eq!(plate.holes.len(), 1);
         let exact = std::f64::consts::PI * 3.0;
         assert_eq!(plate.exact_area, Some(exact));
@@ -270,7 +324,7 @@ mod tests {
             holes: vec![sq(1.0)],
             cuts: vec![],
         };
-        let plate = spec.discretise(&|_| 0.5).unwrap();
+        let plate = spec.discretise(&|_| 0.5, usize::MAX).unwrap();
         // Outer corners are 90° from inside; the hole's corners are 270° seen from the plate.
         assert!((plate.smallest_corner_angle() - 90.0).abs() < 1e-9);
     }

@@ -23,6 +23,8 @@ pub fn parse_outline(text: &str, path: &Path) -> Result<(Shape, Vec<Shape>), Geo
         line,
         reason,
     };
+    // Editors on some systems start text files with an invisible byte-order mark.
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let mut loops: Vec<(usize, Vec<Point>)> = Vec::new();
     let mut current: Vec<Point> = Vec::new();
     let mut start_line = 0;

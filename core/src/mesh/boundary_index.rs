@@ -112,24 +112,27 @@ impl BoundaryIndex {
 
     /// Even-odd inside test over all loops (inside the outer loop and outside every hole).
     pub fn contains(&self, p: Point) -> bool {
-        let (c0, r) = self.cell_of(p);
         if p[1] < self.origin[1] || p[1] > self.origin[1] + self.cell * self.rows as f64 {
             return false;
         }
+        let (c0, r) = self.cell_of(p);
+        // Every segment that crosses the ray y = p.y, x > p.x is listed in some cell of this
+        // row to the right of p; gather them once each, then count crossings exactly as plain
+        // ray casting does (no per-cell x ranges, whose float edges could drop a crossing).
+        let mut candidates: Vec<u32> = self.cells[r * self.cols + c0..(r + 1) * self.cols]
+            .iter()
+            .flatten()
+            .copied()
+            .collect();
+        candidates.sort_unstable();
+        candidates.dedup();
         let mut inside = false;
-        for c in c0..self.cols {
-            let x_lo = self.origin[0] + self.cell * c as f64;
-            let x_hi = x_lo + self.cell;
-            for &s in &self.cells[r * self.cols + c] {
-                let (a, b, _) = self.segs[s as usize];
-                if (a[1] > p[1]) != (b[1] > p[1]) {
-                    let x = a[0] + (p[1] - a[1]) / (b[1] - a[1]) * (b[0] - a[0]);
-                    // Count each crossing once: in the cell that holds its x (first cell: from p).
-                    let lo = if c == c0 { p[0] } else { x_lo };
-                    let in_cell = x > lo && (x < x_hi || c == self.cols - 1);
-                    if in_cell {
-                        inside = !inside;
-                    }
+        for s in candidates {
+            let (a, b, _) = self.segs[s as usize];
+            if (a[1] > p[1]) != (b[1] > p[1]) {
+                let x = a[0] + (p[1] - a[1]) / (b[1] - a[1]) * (b[0] - a[0]);
+                if p[0] < x {
+                    inside = !inside;
                 }
             }
         }
@@ -150,7 +153,9 @@ mod tests {
                 radius: 1.0,
             },
             &|_| 0.05,
+            usize::MAX,
         )
+        .unwrap()
         .remove(0);
         let hole = shape_rings(
             &Shape::Circle {
@@ -158,7 +163,9 @@ mod tests {
                 radius: 0.3,
             },
             &|_| 0.05,
+            usize::MAX,
         )
+        .unwrap()
         .remove(0);
         let index = BoundaryIndex::new([&outer, &hole].into_iter());
         let mut state = 12345u64;
@@ -173,6 +180,19 @@ mod tests {
             let expected = point_in_ring(p, &outer) && !point_in_ring(p, &hole);
             assert_eq!(index.contains(p), expected, "{p:?}");
         }
+        // Points on the grid's own lines, where crossings fall on cell edges.
+        for k in 0..200 {
+            let p = [
+                index.origin[0] + index.cell * (k % 20) as f64,
+                index.origin[1] + index.cell * (k / 20) as f64,
+            ];
+            let expected = point_in_ring(p, &outer) && !point_in_ring(p, &hole);
+            assert_eq!(index.contains(p), expected, "{p:?}");
+        }
+        let square = vec![[0.0, 0.0], [10.0, 0.0], [10.0, 10.0], [0.0, 10.0]];
+        let sq = BoundaryIndex::new([&square].into_iter());
+        assert!(sq.contains([5.0, 5.0]));
+        assert!(!sq.contains([-3.0, 5.0]));
         assert_eq!(index.nearest_loop([0.3, 0.1]), 1);
         assert_eq!(index.nearest_loop([-0.9, 0.0]), 0);
     }

@@ -79,6 +79,12 @@ pub enum MeshError {
         /// The budget.
         budget: usize,
     },
+    /// A coordinate lies outside the range the triangulation can represent.
+    #[error("coordinate {value:e} is outside the range the triangulation can handle (magnitudes from 1.8e-43 to 3.2e60, or 0); express the plate in another length unit")]
+    CoordinateRange {
+        /// The offending coordinate.
+        value: f64,
+    },
     /// The triangulation library refused the input.
     #[error("triangulation failed: {0}")]
     Triangulation(String),
@@ -150,7 +156,25 @@ pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, 
         spots: options.spots.clone(),
         grading: options.grading,
     };
-    let plate = spec.discretise(&|p| sizes.at(p))?;
+    let plate = spec.discretise(&|p| sizes.at(p), options.max_nodes)?;
+    let (mut lo, mut hi) = ([f64::MAX; 2], [f64::MIN; 2]);
+    for p in &plate.outer {
+        for d in 0..2 {
+            lo[d] = lo[d].min(p[d]);
+            hi[d] = hi[d].max(p[d]);
+        }
+    }
+    let extent = (hi[0] - lo[0]).hypot(hi[1] - lo[1]);
+    for (k, s) in options.spots.iter().enumerate() {
+        // Below this the graded rings would need more digits than a double carries.
+        if s.size < 1e-9 * extent {
+            return Err(MeshError::BadOption(format!(
+                "refinement spot {}: edge length {:e} is below 1e-9 of the plate's extent ({extent:e})",
+                k + 1,
+                s.size
+            )));
+        }
+    }
     let index = BoundaryIndex::new(plate.loops());
     for (k, s) in options.spots.iter().enumerate() {
         if !index.contains(s.centre) {
@@ -179,8 +203,11 @@ pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, 
         constraints.extend((0..n).map(|i| [start + i, start + (i + 1) % n]));
     }
     // Seeds too close to the boundary would force tiny triangles against it.
-    let seeds =
-        sizes.spot_seeds(&|p, h| index.contains(p) && index.nearest_within(p, 0.6 * h).is_none());
+    let seeds = sizes.spot_seeds(
+        &|p, h| index.contains(p) && index.nearest_within(p, 0.6 * h).is_none(),
+        extent,
+        options.max_nodes,
+    );
     vertices.extend(seeds.iter().map(|p| Point2::new(p[0], p[1])));
     if vertices.len() >= options.max_nodes {
         return Err(MeshError::BudgetTooSmall {
@@ -189,10 +216,27 @@ pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, 
         });
     }
 
+    // The triangulation library works in a fixed coordinate range; say so in the user's terms.
+    for p in &vertices {
+        for v in [p.x, p.y] {
+            let ok = v == 0.0
+                || (v.abs() >= spade::MIN_ALLOWED_VALUE && v.abs() <= spade::MAX_ALLOWED_VALUE);
+            if !ok {
+                return Err(MeshError::CoordinateRange { value: v });
+            }
+        }
+    }
+    // Shortest boundary segment: refinement must be allowed to work at that scale, or
+    // triangles against a finely traced outline keep their poor angles.
+    let shortest_segment = plate
+        .loops()
+        .flat_map(|r| (0..r.len()).map(move |i| crate::geometry::dist(r[i], r[(i + 1) % r.len()])))
+        .fold(f64::MAX, f64::min);
+
     let mut cdt =
         ConstrainedDelaunayTriangulation::<Point2<f64>>::bulk_load_cdt(vertices, constraints)
             .map_err(|e| MeshError::Triangulation(format!("{e:?}")))?;
-    let h_min = sizes.smallest();
+    let h_min = sizes.smallest().min(shortest_segment);
     // Allow triangles somewhat above the equilateral area for the target length: refinement
     // splits anything larger, and the resulting triangles are smaller on average.
     let max_area = 3f64.sqrt() / 4.0 * options.size * options.size * AREA_FACTOR;
@@ -339,7 +383,15 @@ mod tests {
                 max_nodes: 1000,
                 ..Default::default()
             }),
-            MeshError::BudgetTooSmall { .. }
+            MeshError::Geometry(GeometryError::TooManyBoundaryNodes { budget: 1000, .. })
+        ));
+        assert!(matches!(
+            bad(MeshOptions {
+                size: 0.01,
+                max_nodes: 20_000,
+                ..Default::default()
+            }),
+            MeshError::BudgetTooSmall { budget: 20_000, .. }
         ));
         assert!(matches!(
             bad(MeshOptions {

@@ -64,8 +64,15 @@ impl SizeField {
     }
 
     /// Seed points on rings around each spot, spaced at the local target length, so the
-    /// refinement starts from a graded point cloud; `keep` decides which seeds are used.
-    pub fn spot_seeds(&self, keep: &dyn Fn(Point, f64) -> bool) -> Vec<Point> {
+    /// refinement starts from a graded point cloud; `keep` decides which seeds are used. Rings
+    /// stop where the size reaches `far`, beyond `reach` from the spot (the plate's extent), or
+    /// once more than `limit` seeds are kept (the caller then reports the node budget).
+    pub fn spot_seeds(
+        &self,
+        keep: &dyn Fn(Point, f64) -> bool,
+        reach: f64,
+        limit: usize,
+    ) -> Vec<Point> {
         let mut seeds = Vec::new();
         for (i, s) in self.spots.iter().enumerate() {
             // A seed belongs to the spot that sets the size there, so rings of neighbouring
@@ -89,7 +96,7 @@ impl SizeField {
             loop {
                 let h = (s.size + self.grading * r).min(self.far);
                 r += h;
-                if s.size + self.grading * r >= self.far || self.grading <= 0.0 && ring > 0 {
+                if s.size + self.grading * r >= self.far || r > reach {
                     break;
                 }
                 let h_here = s.size + self.grading * r;
@@ -104,8 +111,8 @@ impl SizeField {
                     );
                 }
                 ring += 1;
-                if seeds.len() > 50_000_000 {
-                    break;
+                if seeds.len() > limit {
+                    return seeds;
                 }
             }
         }
@@ -143,7 +150,7 @@ mod tests {
             }],
             grading: 0.3,
         };
-        let seeds = f.spot_seeds(&|_, _| true);
+        let seeds = f.spot_seeds(&|_, _| true, 100.0, usize::MAX);
         assert!(seeds.len() > 50);
         for p in &seeds {
             let h = f.at(*p);

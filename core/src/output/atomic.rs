@@ -11,6 +11,20 @@ fn io_err(path: &Path, e: impl std::fmt::Display) -> OutputError {
     }
 }
 
+/// A temporary-file builder whose files get the permissions a plain `File::create` would
+/// (0o666 less the umask) rather than the private 0o600 of temporary files, because they
+/// become the user's output files.
+fn builder<'a>(suffix: &'a str) -> tempfile::Builder<'a, 'a> {
+    let mut b = tempfile::Builder::new();
+    b.prefix(".agarium-").suffix(suffix);
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        b.permissions(std::fs::Permissions::from_mode(0o666));
+    }
+    b
+}
+
 fn dir_of(path: &Path) -> &Path {
     match path.parent() {
         Some(p) if !p.as_os_str().is_empty() => p,
@@ -24,9 +38,7 @@ pub fn write_atomically(
     path: &Path,
     fill: impl FnOnce(&mut dyn Write) -> Result<(), OutputError>,
 ) -> Result<(), OutputError> {
-    let mut tmp = tempfile::Builder::new()
-        .prefix(".agarium-")
-        .suffix(".part")
+    let mut tmp = builder(".part")
         .tempfile_in(dir_of(path))
         .map_err(|e| io_err(path, e))?;
     {
@@ -49,9 +61,7 @@ pub fn write_atomically_via_path(
         .extension()
         .map(|e| format!(".{}", e.to_string_lossy()))
         .unwrap_or_default();
-    let tmp = tempfile::Builder::new()
-        .prefix(".agarium-")
-        .suffix(&suffix)
+    let tmp = builder(&suffix)
         .tempfile_in(dir_of(path))
         .map_err(|e| io_err(path, e))?;
     fill(tmp.path())?;
