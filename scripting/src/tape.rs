@@ -21,6 +21,9 @@ enum Src {
     Reg(u32),
     /// An input slice (species, x, y), indexed into [`Tape::ext`].
     Ext(u32),
+    /// A constant, by its bits: only arithmetic (`Bin` of [`Ar`] and `Fuse`) operands, so the
+    /// loop multiplies by a value held in a vector register instead of loading a broadcast one.
+    Imm(u64),
 }
 
 /// Where a result goes.
@@ -198,8 +201,13 @@ impl Tape {
                 k if k < u32::MAX - 1 => Dst::Out(k),
                 _ => Dst::Reg(free.pop().unwrap_or_else(|| fresh(&mut n_regs))),
             };
+            // Arithmetic reads constants as immediates.
+            let si = |o: NodeId| match g.node(o) {
+                Node::Const(bits) => Src::Imm(bits),
+                _ => src[o as usize],
+            };
             let inner = |o: NodeId| match g.node(o) {
-                Node::Bin(p, x, y) => Ar::of(p).map(|p| (p, s(x), s(y))),
+                Node::Bin(p, x, y) => Ar::of(p).map(|p| (p, si(x), si(y))),
                 _ => None,
             };
             let (ins, d) = match node {
@@ -224,14 +232,18 @@ impl Tape {
                 }
                 Node::Bin(op, a, b) => {
                     let fuse = match (fused[n as usize], Ar::of(op)) {
-                        (Some(false), Some(q)) => inner(a).map(|(p, x, y)| (p, q, x, y, s(b))),
-                        (Some(true), Some(q)) => inner(b).map(|(p, x, y)| (p, q, x, y, s(a))),
+                        (Some(false), Some(q)) => inner(a).map(|(p, x, y)| (p, q, x, y, si(b))),
+                        (Some(true), Some(q)) => inner(b).map(|(p, x, y)| (p, q, x, y, si(a))),
                         _ => None,
                     };
                     let ins = match fuse {
                         Some((p, q, x, y, z)) => {
                             let right = fused[n as usize] == Some(true);
                             Instr::Fuse(p, q, right, dst(), x, y, z)
+                        }
+                        None if Ar::of(op).is_some() => {
+                            let (a, b) = (si(a), si(b));
+                            Instr::Bin(op, dst(), a, b)
                         }
                         None => {
                             let (a, b) = (s(a), s(b));
@@ -374,8 +386,35 @@ fn source<'a>(
             }
         }
         Src::Ext(e) => &ext[e as usize][at..at + CHUNK],
+        Src::Imm(_) => unreachable!("immediates are only arithmetic operands"),
     };
     lane(s)
+}
+
+/// An arithmetic operand: a chunk or an immediate.
+#[derive(Clone, Copy)]
+enum Opnd<'a> {
+    V(&'a [f64; CHUNK]),
+    S(f64),
+}
+
+/// Value `i` of an operand; monomorphised so an immediate stays in a register.
+trait Lanes: Copy {
+    fn at(self, i: usize) -> f64;
+}
+
+impl Lanes for &[f64; CHUNK] {
+    #[inline(always)]
+    fn at(self, i: usize) -> f64 {
+        self[i]
+    }
+}
+
+impl Lanes for f64 {
+    #[inline(always)]
+    fn at(self, _: usize) -> f64 {
+        self
+    }
 }
 
 /// A chunk-long slice as an array, so the loops below have a constant trip count.
@@ -427,6 +466,10 @@ fn exec(regs: &mut [f64], ext: &[&[f64]], outs: &mut [&mut [f64]], at: usize, in
     };
     let dst = lane_mut(dst);
     let src = |s| source(lo, hi, dr, ext, at, s);
+    let opnd = |s| match s {
+        Src::Imm(bits) => Opnd::S(f64::from_bits(bits)),
+        s => Opnd::V(src(s)),
+    };
     match *ins {
         Instr::Un(op, _, a) => {
             let a = src(a);
@@ -440,13 +483,18 @@ fn exec(regs: &mut [f64], ext: &[&[f64]], outs: &mut [&mut [f64]], at: usize, in
                 _ => lanes1!(dst, a, |x| ops::un(op, x)),
             }
         }
+        Instr::Bin(op, _, a, b) if Ar::of(op).is_some() => {
+            let (a, b) = (opnd(a), opnd(b));
+            match op {
+                Bin::Add => arith::<0>(dst, a, b),
+                Bin::Sub => arith::<1>(dst, a, b),
+                Bin::Mul => arith::<2>(dst, a, b),
+                _ => arith::<3>(dst, a, b),
+            }
+        }
         Instr::Bin(op, _, a, b) => {
             let (a, b) = (src(a), src(b));
             match op {
-                Bin::Add => lanes2!(dst, a, b, |x, y| x + y),
-                Bin::Sub => lanes2!(dst, a, b, |x, y| x - y),
-                Bin::Mul => lanes2!(dst, a, b, |x, y| x * y),
-                Bin::Div => lanes2!(dst, a, b, |x, y| x / y),
                 Bin::Pow => lanes2!(dst, a, b, |x, y| x.powf(y)),
                 Bin::Min => lanes2!(dst, a, b, |x, y| ops::bin(Bin::Min, x, y)),
                 Bin::Max => lanes2!(dst, a, b, |x, y| ops::bin(Bin::Max, x, y)),
@@ -462,8 +510,17 @@ fn exec(regs: &mut [f64], ext: &[&[f64]], outs: &mut [&mut [f64]], at: usize, in
             }
         }
         Instr::Fuse(p, q, right, _, x, y, z) => {
-            let (x, y, z) = (src(x), src(y), src(z));
-            fused(dst, p, q, right, x, y, z);
+            use Opnd::{S, V};
+            match (opnd(x), opnd(y), opnd(z)) {
+                (V(x), V(y), V(z)) => fused(dst, p, q, right, x, y, z),
+                (S(x), V(y), V(z)) => fused(dst, p, q, right, x, y, z),
+                (V(x), S(y), V(z)) => fused(dst, p, q, right, x, y, z),
+                (V(x), V(y), S(z)) => fused(dst, p, q, right, x, y, z),
+                (S(x), S(y), V(z)) => fused(dst, p, q, right, x, y, z),
+                (S(x), V(y), S(z)) => fused(dst, p, q, right, x, y, z),
+                (V(x), S(y), S(z)) => fused(dst, p, q, right, x, y, z),
+                (S(x), S(y), S(z)) => fused(dst, p, q, right, x, y, z),
+            }
         }
     }
 }
@@ -478,40 +535,59 @@ fn ar<const P: u8>(x: f64, y: f64) -> f64 {
     }
 }
 
+/// `d = a p b` for chunk or immediate operands.
+#[inline(always)]
+fn arith<const P: u8>(d: &mut [f64; CHUNK], a: Opnd, b: Opnd) {
+    #[inline(always)]
+    fn go<const P: u8, A: Lanes, B: Lanes>(d: &mut [f64; CHUNK], a: A, b: B) {
+        for (i, o) in d.iter_mut().enumerate() {
+            *o = ar::<P>(a.at(i), b.at(i));
+        }
+    }
+    match (a, b) {
+        (Opnd::V(a), Opnd::V(b)) => go::<P, _, _>(d, a, b),
+        (Opnd::S(a), Opnd::V(b)) => go::<P, _, _>(d, a, b),
+        (Opnd::V(a), Opnd::S(b)) => go::<P, _, _>(d, a, b),
+        (Opnd::S(a), Opnd::S(b)) => go::<P, _, _>(d, a, b),
+    }
+}
+
 /// `d = (x p y) q z`, or `d = z q (x p y)` when `R`; one loop per combination.
 #[inline(always)]
-fn fused_loop<const P: u8, const Q: u8, const R: bool>(
+fn fused_loop<const P: u8, const Q: u8, const R: bool, X: Lanes, Y: Lanes, Z: Lanes>(
     d: &mut [f64; CHUNK],
-    x: &[f64; CHUNK],
-    y: &[f64; CHUNK],
-    z: &[f64; CHUNK],
+    x: X,
+    y: Y,
+    z: Z,
 ) {
-    for (((o, &x), &y), &z) in d.iter_mut().zip(x).zip(y).zip(z) {
-        let t = ar::<P>(x, y);
+    for (i, o) in d.iter_mut().enumerate() {
+        let t = ar::<P>(x.at(i), y.at(i));
+        let z = z.at(i);
         *o = if R { ar::<Q>(z, t) } else { ar::<Q>(t, z) };
     }
 }
 
-fn fused(
+#[inline(always)]
+fn fused<X: Lanes, Y: Lanes, Z: Lanes>(
     d: &mut [f64; CHUNK],
     p: Ar,
     q: Ar,
     right: bool,
-    x: &[f64; CHUNK],
-    y: &[f64; CHUNK],
-    z: &[f64; CHUNK],
+    x: X,
+    y: Y,
+    z: Z,
 ) {
     macro_rules! by_q {
         ($p:literal) => {
             match (q, right) {
-                (Ar::Add, false) => fused_loop::<$p, 0, false>(d, x, y, z),
-                (Ar::Sub, false) => fused_loop::<$p, 1, false>(d, x, y, z),
-                (Ar::Mul, false) => fused_loop::<$p, 2, false>(d, x, y, z),
-                (Ar::Div, false) => fused_loop::<$p, 3, false>(d, x, y, z),
-                (Ar::Add, true) => fused_loop::<$p, 0, true>(d, x, y, z),
-                (Ar::Sub, true) => fused_loop::<$p, 1, true>(d, x, y, z),
-                (Ar::Mul, true) => fused_loop::<$p, 2, true>(d, x, y, z),
-                (Ar::Div, true) => fused_loop::<$p, 3, true>(d, x, y, z),
+                (Ar::Add, false) => fused_loop::<$p, 0, false, X, Y, Z>(d, x, y, z),
+                (Ar::Sub, false) => fused_loop::<$p, 1, false, X, Y, Z>(d, x, y, z),
+                (Ar::Mul, false) => fused_loop::<$p, 2, false, X, Y, Z>(d, x, y, z),
+                (Ar::Div, false) => fused_loop::<$p, 3, false, X, Y, Z>(d, x, y, z),
+                (Ar::Add, true) => fused_loop::<$p, 0, true, X, Y, Z>(d, x, y, z),
+                (Ar::Sub, true) => fused_loop::<$p, 1, true, X, Y, Z>(d, x, y, z),
+                (Ar::Mul, true) => fused_loop::<$p, 2, true, X, Y, Z>(d, x, y, z),
+                (Ar::Div, true) => fused_loop::<$p, 3, true, X, Y, Z>(d, x, y, z),
             }
         };
     }
