@@ -6,6 +6,8 @@
 //! and outputs written straight into the caller's buffers; only a final partial chunk goes
 //! through padded copies.
 
+use multiversion::multiversion;
+
 use agarium_core::kernel::{check_shapes, BatchKernel, KernelError, KernelInput, Scratch};
 
 use crate::graph::ops;
@@ -450,6 +452,10 @@ macro_rules! lanes2 {
     };
 }
 
+/// One instruction over one chunk. Cloned per instruction set and chosen at run time, so the
+/// loops use wider vectors where the CPU has them; no clone enables contraction into fused
+/// multiply-adds (Rust never contracts), so every clone gives the same bits.
+#[multiversion(targets("x86_64+avx512f+avx512vl+avx2+fma", "x86_64+avx2+fma", "x86_64+avx"))]
 #[inline(never)]
 fn exec(regs: &mut [f64], ext: &[&[f64]], outs: &mut [&mut [f64]], at: usize, ins: &Instr) {
     let d = ins.dst();
