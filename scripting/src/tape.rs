@@ -6,7 +6,12 @@
 //! and outputs written straight into the caller's buffers; only a final partial chunk goes
 //! through padded copies.
 
-use multiversion::multiversion;
+use ::multiversion::multiversion;
+
+/// The runtime-dispatch crate the evaluator uses, so benchmarks can build their native baseline
+/// with the same dispatch.
+#[doc(hidden)]
+pub use ::multiversion;
 
 use agarium_core::kernel::{check_shapes, BatchKernel, KernelError, KernelInput, Scratch};
 
