@@ -112,6 +112,25 @@ pub enum Val {
     I(i64),
     /// A boolean node holding 0/1.
     B(NodeId),
+    /// A float node whose value the script engine holds as an integer on some states: an `if`
+    /// with an integer literal in one branch and a float in the other. It acts as that float
+    /// wherever it meets a float, and stays mixed through `+ - *` with integers (the values are
+    /// equal either way); operations that the engine computes differently on integers (`/`,
+    /// `%`, `**`, comparisons with integers, float-only functions) are refused, since which
+    /// arithmetic applies would depend on the state.
+    W(NodeId),
+}
+
+/// Why a mixed value cannot be used by `what`.
+fn mixed_error(what: &str, pos: Pos) -> LowerError {
+    LowerError::Type {
+        message: format!(
+            "{what} would get an integer on some states and a float on others (an `if` with an \
+             integer branch and a float branch), and the script engine computes the two \
+             differently; write the integer branch as a float (7.0, not 7)"
+        ),
+        pos,
+    }
 }
 
 /// The file's functions, by name and arity; a function using constructs outside the numeric
@@ -190,7 +209,7 @@ impl<'a> Lowerer<'a> {
     /// Converts a term result to a float node (integers widen exactly as the engine's `as`).
     fn float(&mut self, v: Val, pos: Pos, what: &str) -> Result<NodeId, LowerError> {
         match v {
-            Val::F(n) => Ok(n),
+            Val::F(n) | Val::W(n) => Ok(n),
             Val::I(i) => Ok(self.graph.konst(i as f64)),
             Val::B(_) => Err(LowerError::Type {
                 message: format!("{what} yields a boolean where a number is needed"),
@@ -370,17 +389,28 @@ impl<'a> Lowerer<'a> {
     fn merge(&mut self, c: NodeId, a: Val, b: Val, pos: Pos) -> Result<Val, LowerError> {
         Ok(match (a, b) {
             (Val::F(x), Val::F(y)) => Val::F(self.graph.select(c, x, y)),
+            // Any branch that may be an integer makes the result mixed (see `Val::W`).
+            (Val::W(x), Val::F(y) | Val::W(y)) | (Val::F(x), Val::W(y)) => {
+                Val::W(self.graph.select(c, x, y))
+            }
+            (Val::W(x), Val::I(y)) => {
+                let k = self.graph.konst(y as f64);
+                Val::W(self.graph.select(c, x, k))
+            }
+            (Val::I(x), Val::W(y)) => {
+                let k = self.graph.konst(x as f64);
+                Val::W(self.graph.select(c, k, y))
+            }
             (Val::B(x), Val::B(y)) => Val::B(self.graph.select(c, x, y)),
             (Val::I(x), Val::I(y)) if x == y => Val::I(x),
-            // A literal integer beside a float (`0` for `0.0`) acts as that float wherever it
-            // meets a float, so it is widened here.
+            // A literal integer beside a float (`0` for `0.0`): mixed, see `Val::W`.
             (Val::I(x), Val::F(y)) => {
                 let k = self.graph.konst(x as f64);
-                Val::F(self.graph.select(c, k, y))
+                Val::W(self.graph.select(c, k, y))
             }
             (Val::F(x), Val::I(y)) => {
                 let k = self.graph.konst(y as f64);
-                Val::F(self.graph.select(c, x, k))
+                Val::W(self.graph.select(c, x, k))
             }
             (Val::I(_), Val::I(_)) => {
                 return Err(LowerError::Type {
@@ -485,6 +515,10 @@ impl<'a> Lowerer<'a> {
     fn need_float(&mut self, name: &str, v: Val, pos: Pos) -> Result<NodeId, LowerError> {
         match v {
             Val::F(n) => Ok(n),
+            Val::W(_) => Err(mixed_error(
+                &format!("`{name}` (which has no integer version)"),
+                pos,
+            )),
             Val::I(_) => Err(LowerError::Type {
                 message: format!(
                     "`{name}` takes a float; the script engine has no integer version \
@@ -501,7 +535,7 @@ impl<'a> Lowerer<'a> {
 
     fn widen(&mut self, v: Val, pos: Pos, what: &str) -> Result<NodeId, LowerError> {
         match v {
-            Val::F(n) => Ok(n),
+            Val::F(n) | Val::W(n) => Ok(n),
             Val::I(i) => Ok(self.graph.konst(i as f64)),
             Val::B(_) => Err(LowerError::Type {
                 message: format!("{what} needs numbers, not booleans"),
@@ -536,6 +570,7 @@ impl<'a> Lowerer<'a> {
                         pos,
                     })
             }
+            ("abs", [Val::W(a)]) => Ok(Val::W(self.graph.un(Un::Abs, *a))),
             ("abs", [a]) => {
                 let a = self.need_float(name, *a, pos)?;
                 Ok(Val::F(self.graph.un(Un::Abs, a)))
@@ -549,12 +584,18 @@ impl<'a> Lowerer<'a> {
                 Ok(Val::I(if name == "min" { *a.min(b) } else { *a.max(b) }))
             }
             ("min" | "max", [a, b]) => {
+                let mixed = matches!(a, Val::W(_)) || matches!(b, Val::W(_));
                 let a = self.widen(*a, pos, name)?;
                 let b = self.widen(*b, pos, name)?;
                 let op = if name == "min" { Bin::Min } else { Bin::Max };
-                Ok(Val::F(self.graph.bin(op, a, b)))
+                let n = self.graph.bin(op, a, b);
+                // The smaller or larger value is the same number whichever type it has.
+                Ok(if mixed { Val::W(n) } else { Val::F(n) })
             }
             ("pow", [a, b]) => {
+                if matches!(a, Val::W(_)) || matches!(b, Val::W(_)) {
+                    return Err(mixed_error("`pow`", pos));
+                }
                 if let (Val::I(_), Val::I(_)) = (a, b) {
                     return Err(LowerError::Type {
                         message: "`pow` takes floats (write 2.0, not 2); use `**` for integers"
@@ -582,7 +623,8 @@ impl<'a> Lowerer<'a> {
                 .map(Val::I)
                 .ok_or_else(|| arith(format!("negation overflow: -{i}"))),
             ("-", [Val::F(a)]) => Ok(Val::F(self.graph.un(Un::Neg, *a))),
-            ("+", [v @ (Val::I(_) | Val::F(_))]) => Ok(*v),
+            ("-", [Val::W(a)]) => Ok(Val::W(self.graph.un(Un::Neg, *a))),
+            ("+", [v @ (Val::I(_) | Val::F(_) | Val::W(_))]) => Ok(*v),
             ("!", [Val::B(a)]) => Ok(Val::B(self.graph.un(Un::Not, *a))),
             (_, [Val::I(a), Val::I(b)]) => int_op(op, *a, *b, pos, self.graph),
             (_, [a, b]) => {
@@ -607,11 +649,24 @@ impl<'a> Lowerer<'a> {
                         .into())
                     }
                 };
+                // A mixed value next to a float is a float; next to an integer or another mixed
+                // value it stays mixed through + - * and is refused elsewhere.
+                let mixed = match (a, b) {
+                    (Val::W(_), Val::I(_) | Val::W(_)) | (Val::I(_), Val::W(_)) => {
+                        if !matches!(op, "+" | "-" | "*") {
+                            return Err(mixed_error(&format!("`{op}`"), pos));
+                        }
+                        true
+                    }
+                    _ => false,
+                };
                 let x = self.widen(*a, pos, &format!("`{op}`"))?;
                 let y = self.widen(*b, pos, &format!("`{op}`"))?;
                 let n = self.graph.bin(bop, x, y);
                 Ok(if is_comparison(op) {
                     Val::B(n)
+                } else if mixed {
+                    Val::W(n)
                 } else {
                     Val::F(n)
                 })

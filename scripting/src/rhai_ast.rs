@@ -80,7 +80,9 @@ pub fn expression(ast: &AST) -> Result<Expr, Unsupported> {
         [RStmt::Expr(e)] => expr(e),
         [RStmt::FnCall(f, p)] => call(f, *p),
         [] => Ok(Expr::Float(0.0, Pos::default())),
-        [s, ..] => unsupported("statement in an expression", s.position()),
+        // An `if` (or other statement) standing alone is a statement whose value is the
+        // expression's, exactly as in a block.
+        list => Ok(Expr::Block(stmts(list)?, pos_of(list[0].position()))),
     }
 }
 

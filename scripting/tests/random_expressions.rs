@@ -170,9 +170,10 @@ enum I {
 
 /// A float expression. Variables are picked among the float names in scope by index.
 ///
-/// Both branches of an `if` are floats: an integer branch beside a float one is compiled as if
-/// it were a float, which differs from the engine once the `if` meets an integer operation
-/// (defect, see `defect_integer_branch_beside_float_branch_is_widened`).
+/// Both branches of an `if` are floats: an integer branch beside a float one is refused by the
+/// compiler wherever the engine's integer arithmetic would differ (see
+/// `integer_branch_where_integer_arithmetic_would_differ_is_refused`), which a generator of
+/// valid terms has to avoid.
 #[derive(Clone, Debug)]
 enum F {
     Lit(f64),
@@ -737,15 +738,8 @@ impl Case {
                         ints: Vec::new(),
                         helpers: &sigs,
                     };
-                    // A whole expression string that is one `if` is refused (defect, see
-                    // `defect_expression_string_that_is_an_if_is_refused`); `1.0 * x` is `x`
-                    // bit for bit, so wrapping it keeps the term and moves the `if` inside.
                     let text = scope.float(&t.body.ret);
-                    if text.starts_with("(if ") {
-                        format!("\"1.0 * {text}\"")
-                    } else {
-                        format!("\"{text}\"")
-                    }
+                    format!("\"{text}\"")
                 }
             };
             decls.push_str(&format!(
@@ -1084,7 +1078,8 @@ fn random_models_match_engine_and_finite_differences() {
 }
 
 // ----------------------------------------------------------------------------------------------
-// Defects found by the generator (minimal reproducers; the generator avoids these constructs).
+// Cases the generator found: an `if` standing alone as an expression string, and `if`s mixing an
+// integer and a float branch (accepted where the engine's arithmetic agrees, refused elsewhere).
 
 /// Loads and compiles `src` (one species `u`), then compares compiled and engine values at `us`.
 fn assert_matches_engine(src: &str, us: &[f64]) {
@@ -1108,11 +1103,18 @@ fn assert_matches_engine(src: &str, us: &[f64]) {
     }
 }
 
+/// A model the compiler must refuse with a message containing `expected`.
+fn assert_refused(src: &str, expected: &str) {
+    let model = Model::load("mixed.rhai", src, &Overrides::new()).expect("loads");
+    match model.compile() {
+        Ok(_) => panic!("compiled, but the engine's arithmetic would depend on the state\n{src}"),
+        Err(e) => assert!(e.to_string().contains(expected), "{e}\n{src}"),
+    }
+}
+
 #[test]
-#[ignore = "defect: an expression string that is a single `if` expression is refused"]
-fn defect_expression_string_that_is_an_if_is_refused() {
-    // The engine evaluates this term (1.0 for u > 0, 2.0 otherwise); the compiler stops with
-    // "statement in an expression is not supported". `"1.0 * (if ...)"` compiles.
+fn expression_string_that_is_an_if_compiles() {
+    // The engine evaluates this term (1.0 for u > 0, 2.0 otherwise).
     assert_matches_engine(
         r#"species("u", #{ kind: "mobile", diffusion: 1.0,
                           reaction: "if u > 0.0 { 1.0 } else { 2.0 }" });"#,
@@ -1121,25 +1123,39 @@ fn defect_expression_string_that_is_an_if_is_refused() {
 }
 
 #[test]
-#[ignore = "defect: an integer `if` branch beside a float branch is widened to a float"]
-fn defect_integer_branch_beside_float_branch_is_widened() {
-    // For u > 1 the engine's `if` yields the integer 7, so `7 / 2` is integer division (3);
-    // the compiler widened the branch to 7.0 and gives 3.5.
+fn integer_branch_beside_float_branch_acts_as_a_float_next_to_floats() {
+    // `0` beside `u` meets only floats afterwards: the engine's int*float is the float product.
     assert_matches_engine(
         r#"species("u", #{ kind: "mobile", diffusion: 1.0,
-                          reaction: |u| (if u > 1.0 { 7 } else { u }) / 2 });"#,
-        &[0.5, 2.0],
+                          reaction: |u| 2.0 * (if u > 1.0 { 0 } else { u }) + (if u < 0.0 { 3 } else { u }) * 3 });"#,
+        &[-1.0, 0.5, 2.0],
     );
 }
 
 #[test]
-#[ignore = "defect: an integer `if` branch reaches a float-only function as a float"]
-fn defect_integer_branch_reaches_float_only_function() {
-    // For u > 1 the engine calls `sqrt` on the integer 4, which it has no version of (an
-    // error, NaN here); the compiler widened the branch and gives 2.0.
-    assert_matches_engine(
+fn integer_branch_where_integer_arithmetic_would_differ_is_refused() {
+    // For u > 1 the engine's `if` yields the integer 7, so `7 / 2` is integer division (3),
+    // while for u ≤ 1 it divides floats: no single compiled formula is the engine's, so the
+    // compiler refuses with the position and a fix.
+    assert_refused(
+        r#"species("u", #{ kind: "mobile", diffusion: 1.0,
+                          reaction: |u| (if u > 1.0 { 7 } else { u }) / 2 });"#,
+        "mixed.rhai:2:",
+    );
+    assert_refused(
+        r#"species("u", #{ kind: "mobile", diffusion: 1.0,
+                          reaction: |u| (if u > 1.0 { 7 } else { u }) / 2 });"#,
+        "write the integer branch as a float",
+    );
+    // The engine has no integer `sqrt`: the integer branch would fail there.
+    assert_refused(
         r#"species("u", #{ kind: "mobile", diffusion: 1.0,
                           reaction: |u| sqrt(if u > 1.0 { 4 } else { u }) });"#,
-        &[0.5, 2.0],
+        "`sqrt` (which has no integer version)",
+    );
+    assert_refused(
+        r#"species("u", #{ kind: "mobile", diffusion: 1.0,
+                          reaction: |u| (if u > 1.0 { 4 } else { u }) ** 2 });"#,
+        "`**`",
     );
 }
