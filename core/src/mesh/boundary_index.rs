@@ -5,7 +5,9 @@ use crate::geometry::{Point, Ring};
 
 /// Segments of all loops bucketed by grid cell.
 pub struct BoundaryIndex {
-    segs: Vec<(Point, Point, usize)>,
+    /// Segments as (start, end, loop, index within the loop).
+    segs: Vec<(Point, Point, usize, usize)>,
+    longest: f64,
     origin: Point,
     cell: f64,
     cols: usize,
@@ -31,11 +33,11 @@ impl BoundaryIndex {
         for (k, ring) in loops.enumerate() {
             let n = ring.len();
             for i in 0..n {
-                segs.push((ring[i], ring[(i + 1) % n], k));
+                segs.push((ring[i], ring[(i + 1) % n], k, i));
             }
         }
         let (mut lo, mut hi) = ([f64::MAX; 2], [f64::MIN; 2]);
-        for (a, _, _) in &segs {
+        for (a, _, _, _) in &segs {
             for d in 0..2 {
                 lo[d] = lo[d].min(a[d]);
                 hi[d] = hi[d].max(a[d]);
@@ -47,7 +49,12 @@ impl BoundaryIndex {
         let cell = ((w + h) / (segs.len() as f64).max(1.0) * 2.0).max(w.max(h) / 4096.0);
         let cols = (w / cell).ceil() as usize + 1;
         let rows = (h / cell).ceil() as usize + 1;
+        let longest = segs
+            .iter()
+            .map(|(a, b, _, _)| (a[0] - b[0]).hypot(a[1] - b[1]))
+            .fold(0.0, f64::max);
         let mut index = BoundaryIndex {
+            longest,
             segs,
             origin: lo,
             cell,
@@ -55,7 +62,7 @@ impl BoundaryIndex {
             rows,
             cells: vec![Vec::new(); cols * rows],
         };
-        for (s, &(a, b, _)) in index.segs.iter().enumerate() {
+        for (s, &(a, b, _, _)) in index.segs.iter().enumerate() {
             let (c0, r0) = index.cell_of([a[0].min(b[0]), a[1].min(b[1])]);
             let (c1, r1) = index.cell_of([a[0].max(b[0]), a[1].max(b[1])]);
             for r in r0..=r1 {
@@ -85,7 +92,7 @@ impl BoundaryIndex {
         for r in r0..=r1 {
             for c in c0..=c1 {
                 for &s in &self.cells[r * self.cols + c] {
-                    let (a, b, k) = self.segs[s as usize];
+                    let (a, b, k, _) = self.segs[s as usize];
                     let d = seg_distance(p, a, b);
                     if d <= radius && best.is_none_or(|(bd, _)| d < bd) {
                         best = Some((d, k));
@@ -94,6 +101,26 @@ impl BoundaryIndex {
             }
         }
         best
+    }
+
+    /// A segment whose diametral circle holds `p` (so `p` must not become a node: the angle it
+    /// makes over that segment would be obtuse), as (loop, index within the loop).
+    pub fn encroached_by(&self, p: Point) -> Option<(usize, usize)> {
+        let r = 0.5 * self.longest;
+        let (c0, r0) = self.cell_of([p[0] - r, p[1] - r]);
+        let (c1, r1) = self.cell_of([p[0] + r, p[1] + r]);
+        for row in r0..=r1 {
+            for c in c0..=c1 {
+                for &s in &self.cells[row * self.cols + c] {
+                    let (a, b, k, i) = self.segs[s as usize];
+                    // Inside the circle on ab as diameter: the angle apb exceeds 90°.
+                    if (a[0] - p[0]) * (b[0] - p[0]) + (a[1] - p[1]) * (b[1] - p[1]) < 0.0 {
+                        return Some((k, i));
+                    }
+                }
+            }
+        }
+        None
     }
 
     /// The loop nearest to `p` (searching outward until one is found).
@@ -128,7 +155,7 @@ impl BoundaryIndex {
         candidates.dedup();
         let mut inside = false;
         for s in candidates {
-            let (a, b, _) = self.segs[s as usize];
+            let (a, b, _, _) = self.segs[s as usize];
             if (a[1] > p[1]) != (b[1] > p[1]) {
                 let x = a[0] + (p[1] - a[1]) / (b[1] - a[1]) * (b[0] - a[0]);
                 if p[0] < x {

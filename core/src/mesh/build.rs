@@ -6,7 +6,7 @@ use super::boundary_index::BoundaryIndex;
 use super::renumber::reverse_cuthill_mckee;
 use super::sizing::{SizeField, Spot};
 use super::{Mesh, MeshDataError};
-use crate::geometry::{GeometryError, Plate, PlateSpec, Point};
+use crate::geometry::{dist, GeometryError, Plate, PlateSpec, Point};
 use ndarray::Array2;
 use spade::{
     AngleLimit, ConstrainedDelaunayTriangulation, Point2, RefinementParameters, Triangulation,
@@ -194,91 +194,35 @@ pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, 
         });
     }
 
-    let mut vertices: Vec<Point2<f64>> = Vec::new();
-    let mut constraints: Vec<[usize; 2]> = Vec::new();
-    for ring in plate.loops() {
-        let start = vertices.len();
-        let n = ring.len();
-        vertices.extend(ring.iter().map(|p| Point2::new(p[0], p[1])));
-        constraints.extend((0..n).map(|i| [start + i, start + (i + 1) % n]));
-    }
     // Seeds too close to the boundary would force tiny triangles against it.
     let seeds = sizes.spot_seeds(
         &|p, h| index.contains(p) && index.nearest_within(p, 0.6 * h).is_none(),
         extent,
         options.max_nodes,
     );
-    vertices.extend(seeds.iter().map(|p| Point2::new(p[0], p[1])));
-    if vertices.len() >= options.max_nodes {
-        return Err(MeshError::BudgetTooSmall {
-            estimate: vertices.len(),
-            budget: options.max_nodes,
-        });
-    }
-
-    // The triangulation library works in a fixed coordinate range; say so in the user's terms.
-    for p in &vertices {
-        for v in [p.x, p.y] {
-            let ok = v == 0.0
-                || (v.abs() >= spade::MIN_ALLOWED_VALUE && v.abs() <= spade::MAX_ALLOWED_VALUE);
-            if !ok {
-                return Err(MeshError::CoordinateRange { value: v });
-            }
-        }
-    }
     // Shortest boundary segment: refinement must be allowed to work at that scale, or
     // triangles against a finely traced outline keep their poor angles.
     let shortest_segment = plate
         .loops()
         .flat_map(|r| (0..r.len()).map(move |i| crate::geometry::dist(r[i], r[(i + 1) % r.len()])))
         .fold(f64::MAX, f64::min);
-
-    let mut cdt =
-        ConstrainedDelaunayTriangulation::<Point2<f64>>::bulk_load_cdt(vertices, constraints)
-            .map_err(|e| MeshError::Triangulation(format!("{e:?}")))?;
     let h_min = sizes.smallest().min(shortest_segment);
-    // Allow triangles somewhat above the equilateral area for the target length: refinement
-    // splits anything larger, and the resulting triangles are smaller on average.
-    let max_area = 3f64.sqrt() / 4.0 * options.size * options.size * AREA_FACTOR;
-    let params = RefinementParameters::<f64>::new()
-        .with_angle_limit(AngleLimit::from_deg(options.min_angle_deg))
-        .with_max_allowed_area(max_area)
-        // Stops endless splitting at input corners sharper than the angle bound.
-        .with_min_required_area(3f64.sqrt() / 4.0 * (0.05 * h_min).powi(2))
-        .exclude_outer_faces(true)
-        .with_max_additional_vertices(options.max_nodes - cdt.num_vertices());
-    let result = cdt.refine(params);
-    if !result.refinement_complete {
-        return Err(MeshError::BudgetReached {
-            budget: options.max_nodes,
-        });
-    }
-    let mut excluded = vec![false; cdt.num_all_faces()];
-    for f in result.excluded_faces {
-        excluded[f.index()] = true;
-    }
+    let min_area = 3f64.sqrt() / 4.0 * (0.05 * h_min).powi(2);
 
-    // Keep inner faces, compact the vertices they use.
-    let mut used = vec![usize::MAX; cdt.num_vertices()];
-    let mut coords: Vec<[f64; 2]> = Vec::new();
-    let mut triangles = Vec::with_capacity(cdt.num_inner_faces());
-    for face in cdt.inner_faces() {
-        if excluded[face.fix().index()] {
-            continue;
+    // Classical Delaunay refinement splits a boundary segment whenever a new node would
+    // encroach on it; the library occasionally leaves such a skinny triangle instead. Those
+    // segments are split here and the plate triangulated again (see `triangulate`).
+    let mut plate = plate;
+    let mut attempt = 0;
+    let (coords, mut triangles) = loop {
+        let index = BoundaryIndex::new(plate.loops());
+        let done = triangulate(&plate, &index, &seeds, options, min_area)?;
+        if done.splits.is_empty() || attempt == MAX_BOUNDARY_PASSES {
+            break (done.coords, done.triangles);
         }
-        let mut tri = [0usize; 3];
-        for (slot, v) in tri.iter_mut().zip(face.vertices()) {
-            let i = v.fix().index();
-            if used[i] == usize::MAX {
-                used[i] = coords.len();
-                let p = v.position();
-                coords.push([p.x, p.y]);
-            }
-            *slot = used[i];
-        }
-        triangles.push(tri);
-    }
-    drop(cdt);
+        split_segments(&mut plate, done.splits);
+        attempt += 1;
+    };
 
     // Renumber by reverse Cuthill–McKee on the triangle adjacency.
     let n = coords.len();
@@ -300,6 +244,204 @@ pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, 
     triangles.sort_unstable_by_key(|t| *t.iter().min().unwrap_or(&0));
     let mesh = Mesh::from_parts(nodes, triangles, &|mid| index.nearest_loop(mid))?;
     Ok(BuiltMesh { mesh, plate, sizes })
+}
+
+/// How often boundary segments are split and the plate triangulated again (one pass is
+/// normally enough; the rare plates needing more get the best of these).
+const MAX_BOUNDARY_PASSES: usize = 4;
+
+/// Nodes and triangles inside the plate, and the boundary segments that should be split
+/// before trying again (empty when the mesh meets the targets).
+struct Triangulated {
+    coords: Vec<[f64; 2]>,
+    triangles: Vec<[usize; 3]>,
+    splits: Vec<(usize, usize)>,
+}
+
+/// Constrained Delaunay triangulation of the plate's loops and seeds, refined for quality.
+/// Skinny triangles the refinement left are finished by hand: the circumcentre is inserted
+/// and refinement resumed, unless it encroaches on (or lies beyond) a boundary segment, in
+/// which case that segment is reported for splitting (Ruppert's rule).
+fn triangulate(
+    plate: &Plate,
+    index: &BoundaryIndex,
+    seeds: &[Point],
+    options: &MeshOptions,
+    min_area: f64,
+) -> Result<Triangulated, MeshError> {
+    let mut vertices: Vec<Point2<f64>> = Vec::new();
+    let mut constraints: Vec<[usize; 2]> = Vec::new();
+    for ring in plate.loops() {
+        let start = vertices.len();
+        let n = ring.len();
+        vertices.extend(ring.iter().map(|p| Point2::new(p[0], p[1])));
+        constraints.extend((0..n).map(|i| [start + i, start + (i + 1) % n]));
+    }
+    vertices.extend(seeds.iter().map(|p| Point2::new(p[0], p[1])));
+    if vertices.len() >= options.max_nodes {
+        return Err(MeshError::BudgetTooSmall {
+            estimate: vertices.len(),
+            budget: options.max_nodes,
+        });
+    }
+
+    // The triangulation library works in a fixed coordinate range; say so in the user's terms.
+    for p in &vertices {
+        for v in [p.x, p.y] {
+            let ok = v == 0.0
+                || (v.abs() >= spade::MIN_ALLOWED_VALUE && v.abs() <= spade::MAX_ALLOWED_VALUE);
+            if !ok {
+                return Err(MeshError::CoordinateRange { value: v });
+            }
+        }
+    }
+
+    let mut cdt =
+        ConstrainedDelaunayTriangulation::<Point2<f64>>::bulk_load_cdt(vertices, constraints)
+            .map_err(|e| MeshError::Triangulation(format!("{e:?}")))?;
+    // Allow triangles somewhat above the equilateral area for the target length: refinement
+    // splits anything larger, and the resulting triangles are smaller on average.
+    let max_area = 3f64.sqrt() / 4.0 * options.size * options.size * AREA_FACTOR;
+    let params = |cdt: &ConstrainedDelaunayTriangulation<Point2<f64>>| {
+        RefinementParameters::<f64>::new()
+            .with_angle_limit(AngleLimit::from_deg(options.min_angle_deg))
+            .with_max_allowed_area(max_area)
+            // Stops endless splitting at input corners sharper than the angle bound.
+            .with_min_required_area(min_area)
+            .exclude_outer_faces(true)
+            .with_max_additional_vertices(options.max_nodes.saturating_sub(cdt.num_vertices()))
+    };
+    let mut pass = 0;
+    let mut splits = Vec::new();
+    let excluded = loop {
+        let result = cdt.refine(params(&cdt));
+        if !result.refinement_complete {
+            return Err(MeshError::BudgetReached {
+                budget: options.max_nodes,
+            });
+        }
+        let mut excluded = vec![false; cdt.num_all_faces()];
+        for f in result.excluded_faces {
+            excluded[f.index()] = true;
+        }
+        let mut centres: Vec<Point2<f64>> = Vec::new();
+        for f in cdt.inner_faces().filter(|f| !excluded[f.fix().index()]) {
+            let [a, b, c] = f.positions().map(|p| [p.x, p.y]);
+            if !skinny(a, b, c, options.min_angle_deg, min_area) {
+                continue;
+            }
+            let centre = circumcentre(a, b, c);
+            if let Some(seg) = index.encroached_by(centre) {
+                splits.push(seg);
+            } else if !index.contains(centre) {
+                let g = [(a[0] + b[0] + c[0]) / 3.0, (a[1] + b[1] + c[1]) / 3.0];
+                splits.extend(first_crossing_segment(plate, g, centre));
+            } else {
+                centres.push(Point2::new(centre[0], centre[1]));
+            }
+        }
+        if !splits.is_empty() || centres.is_empty() || pass == MAX_BOUNDARY_PASSES {
+            break excluded;
+        }
+        for c in centres {
+            cdt.insert(c)
+                .map_err(|e| MeshError::Triangulation(format!("{e:?}")))?;
+        }
+        pass += 1;
+    };
+    splits.sort_unstable();
+    splits.dedup();
+
+    // Keep inner faces, compact the vertices they use.
+    let mut used = vec![usize::MAX; cdt.num_vertices()];
+    let mut coords: Vec<[f64; 2]> = Vec::new();
+    let mut triangles = Vec::with_capacity(cdt.num_inner_faces());
+    for face in cdt.inner_faces() {
+        if excluded[face.fix().index()] {
+            continue;
+        }
+        let mut tri = [0usize; 3];
+        for (slot, v) in tri.iter_mut().zip(face.vertices()) {
+            let i = v.fix().index();
+            if used[i] == usize::MAX {
+                used[i] = coords.len();
+                let p = v.position();
+                coords.push([p.x, p.y]);
+            }
+            *slot = used[i];
+        }
+        triangles.push(tri);
+    }
+    Ok(Triangulated {
+        coords,
+        triangles,
+        splits,
+    })
+}
+
+/// Whether a triangle of at least `min_area` has an angle below `min_angle_deg`.
+fn skinny(a: Point, b: Point, c: Point, min_angle_deg: f64, min_area: f64) -> bool {
+    let twice = ((b[0] - a[0]) * (c[1] - a[1]) - (b[1] - a[1]) * (c[0] - a[0])).abs();
+    if 0.5 * twice < min_area {
+        return false;
+    }
+    // sin of the smallest angle = shortest side / (2 R), R = abc / (4 · area).
+    let (la, lb, lc) = (dist(b, c), dist(a, c), dist(a, b));
+    let radius = la * lb * lc / (2.0 * twice);
+    la.min(lb).min(lc) / (2.0 * radius) < min_angle_deg.to_radians().sin() * (1.0 - 1e-12)
+}
+
+fn circumcentre(a: Point, b: Point, c: Point) -> Point {
+    let (bx, by) = (b[0] - a[0], b[1] - a[1]);
+    let (cx, cy) = (c[0] - a[0], c[1] - a[1]);
+    let d = 2.0 * (bx * cy - by * cx);
+    let (b2, c2) = (bx * bx + by * by, cx * cx + cy * cy);
+    [
+        a[0] + (cy * b2 - by * c2) / d,
+        a[1] + (bx * c2 - cx * b2) / d,
+    ]
+}
+
+/// The loop segment crossed first on the way from `from` to `to`.
+fn first_crossing_segment(plate: &Plate, from: Point, to: Point) -> Option<(usize, usize)> {
+    let mut best: Option<(f64, (usize, usize))> = None;
+    let (dx, dy) = (to[0] - from[0], to[1] - from[1]);
+    for (k, ring) in plate.loops().enumerate() {
+        let n = ring.len();
+        for i in 0..n {
+            let (p, q) = (ring[i], ring[(i + 1) % n]);
+            let (ex, ey) = (q[0] - p[0], q[1] - p[1]);
+            let den = dx * ey - dy * ex;
+            if den == 0.0 {
+                continue;
+            }
+            let t = ((p[0] - from[0]) * ey - (p[1] - from[1]) * ex) / den;
+            let u = ((p[0] - from[0]) * dy - (p[1] - from[1]) * dx) / den;
+            if (0.0..=1.0).contains(&t)
+                && (0.0..=1.0).contains(&u)
+                && best.is_none_or(|(bt, _)| t < bt)
+            {
+                best = Some((t, (k, i)));
+            }
+        }
+    }
+    best.map(|(_, seg)| seg)
+}
+
+/// Inserts the midpoint of each listed segment into its loop.
+fn split_segments(plate: &mut Plate, mut splits: Vec<(usize, usize)>) {
+    // From the back, so earlier indices stay valid.
+    splits.sort_unstable_by(|x, y| y.cmp(x));
+    for (k, i) in splits {
+        let ring = if k == 0 {
+            &mut plate.outer
+        } else {
+            &mut plate.holes[k - 1]
+        };
+        let n = ring.len();
+        let (p, q) = (ring[i], ring[(i + 1) % n]);
+        ring.insert(i + 1, [0.5 * (p[0] + q[0]), 0.5 * (p[1] + q[1])]);
+    }
 }
 
 /// Ratio of the largest allowed triangle area to the equilateral area of the target length.
