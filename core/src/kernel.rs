@@ -34,6 +34,13 @@ impl KernelInput<'_> {
         self.x.len()
     }
 
+    /// Copies the species values at node `i` into `u` (as many as both hold).
+    pub fn gather(&self, i: usize, u: &mut [f64]) {
+        for (slot, s) in u.iter_mut().zip(self.species) {
+            *slot = s[i];
+        }
+    }
+
     /// True when there are no nodes.
     pub fn is_empty(&self) -> bool {
         self.x.is_empty()
@@ -224,12 +231,6 @@ where
             jacobian,
         }
     }
-
-    fn gather(&self, input: &KernelInput<'_>, i: usize, u: &mut [f64; CLOSURE_MAX_SPECIES]) {
-        for (slot, s) in u.iter_mut().zip(input.species) {
-            *slot = s[i];
-        }
-    }
 }
 
 impl<F, J> BatchKernel for ClosureKernel<F, J>
@@ -264,7 +265,7 @@ where
         let mut o = [0.0; CLOSURE_MAX_SPECIES];
         let n_out = self.n_outputs.min(CLOSURE_MAX_SPECIES);
         for i in 0..n {
-            self.gather(input, i, &mut u);
+            input.gather(i, &mut u);
             (self.value)(
                 &u[..self.n_inputs],
                 input.x[i],
@@ -293,7 +294,7 @@ where
         let mut o = [0.0; CLOSURE_MAX_SPECIES];
         let mut j = vec![0.0; ni * no];
         for i in 0..n {
-            self.gather(input, i, &mut u);
+            input.gather(i, &mut u);
             (self.jacobian)(
                 &u[..ni],
                 input.x[i],

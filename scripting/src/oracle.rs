@@ -162,9 +162,7 @@ impl BatchKernel for Interpreted {
         let n = input.len();
         let mut u = vec![0.0; self.species.len()];
         for i in 0..n {
-            for (s, v) in u.iter_mut().enumerate() {
-                *v = input.species[s][i];
-            }
+            input.gather(i, &mut u);
             for k in 0..self.terms.len() {
                 out[k * n + i] = self.eval_point(k, &u, input.x[i], input.y[i], input.t);
             }
@@ -188,9 +186,7 @@ impl BatchKernel for Interpreted {
         let mut u = vec![0.0; ns];
         for i in 0..n {
             for s in 0..ns {
-                for (q, v) in u.iter_mut().enumerate() {
-                    *v = input.species[q][i];
-                }
+                input.gather(i, &mut u);
                 let h = 1e-7 * u[s].abs().max(1.0);
                 u[s] += h;
                 for k in 0..self.terms.len() {

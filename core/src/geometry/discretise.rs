@@ -16,47 +16,60 @@ pub struct TooManyNodes {
     pub needed: f64,
 }
 
-/// Samples a parametric closed curve `p(t)`, `t ∈ [0, 1)`, with spacing `h(p)`.
+/// Cumulative number of target lengths along a path `p(t)`, `t ∈ [0, 1]`, at `samples`
+/// uniform parameter steps (chord length over `h` at the chord's midpoint).
+fn cumulative_count(
+    p: &dyn Fn(f64) -> Point,
+    h: &dyn Fn(Point) -> f64,
+    samples: usize,
+) -> Vec<f64> {
+    let mut cum = Vec::with_capacity(samples + 1);
+    cum.push(0.0);
+    let mut prev = p(0.0);
+    for k in 1..=samples {
+        let q = p(k as f64 / samples as f64);
+        let mid = [(q[0] + prev[0]) * 0.5, (q[1] + prev[1]) * 0.5];
+        let last = cum[k - 1];
+        cum.push(last + dist(q, prev) / h(mid));
+        prev = q;
+    }
+    cum
+}
+
+/// The parameter where the cumulative count `cum` reaches `target` (linear within a step);
+/// `j` carries the search position between calls with increasing targets.
+fn parameter_at(cum: &[f64], target: f64, j: &mut usize) -> f64 {
+    let samples = cum.len() - 1;
+    while *j + 1 < samples && cum[*j + 1] < target {
+        *j += 1;
+    }
+    let span = cum[*j + 1] - cum[*j];
+    let frac = if span > 0.0 {
+        (target - cum[*j]) / span
+    } else {
+        0.0
+    };
+    (*j as f64 + frac) / samples as f64
+}
+
+/// Samples a parametric closed curve `p(t)`, `t ∈ [0, 1)`, with spacing `h(p)`: nodes at equal
+/// steps of the number of target lengths (equidistribution of arclength / h).
 fn sample_closed_curve(
     curve: &dyn Fn(f64) -> Point,
     h: &dyn Fn(Point) -> f64,
     cap: usize,
 ) -> Result<Ring, TooManyNodes> {
-    // Integrate the number of target lengths along the curve on a fine uniform parameter grid,
-    // then place nodes at equal steps of that count (equidistribution of arclength / h).
-    let fine = 4096;
-    let mut cum = Vec::with_capacity(fine + 1);
-    cum.push(0.0);
-    let mut prev = curve(0.0);
-    for k in 1..=fine {
-        let p = curve(k as f64 / fine as f64);
-        let mid = [(p[0] + prev[0]) * 0.5, (p[1] + prev[1]) * 0.5];
-        let last = cum[k - 1];
-        cum.push(last + dist(p, prev) / h(mid));
-        prev = p;
-    }
-    let total = cum[fine];
+    let cum = cumulative_count(curve, h, 4096);
+    let total = cum[cum.len() - 1];
     // Checked before allocating: an absurdly small size must fail, not exhaust memory.
     if total.is_nan() || total > cap as f64 {
         return Err(TooManyNodes { needed: total });
     }
     let n = (total.round() as usize).max(8);
-    let mut ring = Vec::with_capacity(n);
     let mut j = 0;
-    for i in 0..n {
-        let target = total * i as f64 / n as f64;
-        while j + 1 < fine && cum[j + 1] < target {
-            j += 1;
-        }
-        let span = cum[j + 1] - cum[j];
-        let frac = if span > 0.0 {
-            (target - cum[j]) / span
-        } else {
-            0.0
-        };
-        ring.push(curve((j as f64 + frac) / fine as f64));
-    }
-    Ok(ring)
+    Ok((0..n)
+        .map(|i| curve(parameter_at(&cum, total * i as f64 / n as f64, &mut j)))
+        .collect())
 }
 
 /// Subdivides each straight segment of a closed polygon so no piece is longer than the local
@@ -72,17 +85,10 @@ pub fn subdivide_polygon(
         let a = corners[i];
         let b = corners[(i + 1) % n];
         ring.push(a);
-        let len = dist(a, b);
+        let along = |t: f64| [a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1])];
         // Integrate 1/h along the segment to honour grading near inoculation spots.
-        let samples = 64;
-        let mut cum = vec![0.0];
-        for k in 1..=samples {
-            let t = (k as f64 - 0.5) / samples as f64;
-            let p = [a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1])];
-            let last = cum[k - 1];
-            cum.push(last + len / samples as f64 / h(p));
-        }
-        let total = cum[samples];
+        let cum = cumulative_count(&along, h, 64);
+        let total = cum[cum.len() - 1];
         // `ring` already holds this segment's start, which is one of its `total` pieces.
         let so_far = (ring.len() - 1) as f64;
         if total.is_nan() || so_far + total > cap as f64 {
@@ -96,18 +102,11 @@ pub fn subdivide_polygon(
         let pieces = total.round().max(1.0) as usize;
         let mut j = 0;
         for s in 1..pieces {
-            let target = total * s as f64 / pieces as f64;
-            while j + 1 < samples && cum[j + 1] < target {
-                j += 1;
-            }
-            let span = cum[j + 1] - cum[j];
-            let frac = if span > 0.0 {
-                (target - cum[j]) / span
-            } else {
-                0.0
-            };
-            let t = (j as f64 + frac) / samples as f64;
-            ring.push([a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1])]);
+            ring.push(along(parameter_at(
+                &cum,
+                total * s as f64 / pieces as f64,
+                &mut j,
+            )));
         }
     }
     Ok(ring)
