@@ -213,14 +213,16 @@ pub fn build_mesh(spec: &PlateSpec, options: &MeshOptions) -> Result<BuiltMesh, 
     // encroach on it; the library occasionally leaves such a skinny triangle instead. Those
     // segments are split here and the plate triangulated again (see `triangulate`).
     let mut plate = plate;
+    let mut index = index;
     let mut attempt = 0;
     let (coords, mut triangles) = loop {
-        let index = BoundaryIndex::new(plate.loops());
         let done = triangulate(&plate, &index, &seeds, options, min_area)?;
         if done.splits.is_empty() || attempt == MAX_BOUNDARY_PASSES {
             break (done.coords, done.triangles);
         }
         split_segments(&mut plate, done.splits);
+        // Segment numbers changed; the shape did not.
+        index = BoundaryIndex::new(plate.loops());
         attempt += 1;
     };
 
