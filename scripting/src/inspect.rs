@@ -9,7 +9,8 @@ use crate::model::{CompiledModel, Model};
 /// Findings of [`inspect`].
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct Findings {
-    /// Terms giving NaN or infinity at a sample state (invalid model).
+    /// Terms giving NaN or infinity at a sample state (reported: a term singular at zero can
+    /// be intended).
     pub non_finite: Vec<String>,
     /// Warnings (quasi-positivity, diffusion).
     pub warnings: Vec<String>,
