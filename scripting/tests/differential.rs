@@ -1,5 +1,9 @@
 //! Differential tests: compiled kernels against the script engine's own evaluation (values bit
 //! for bit) and against finite differences (derivatives).
+//!
+//! References: the values oracle is the `rhai` crate's interpreter itself (version 1.27.0 from
+//! crates.io, the reference implementation of the language); derivatives are checked with
+//! central differences, whose O(h²) error bounds the tolerance (common practice).
 
 use agarium_core::kernel::{BatchKernel, KernelInput, Scratch};
 use agarium_scripting::{Model, Overrides};

@@ -2,6 +2,10 @@
 //! compared with the script engine's own evaluation (values bit for bit) and with finite
 //! differences (partial derivatives).
 //!
+//! References: the values oracle is the `rhai` crate's interpreter itself (version 1.27.0 from
+//! crates.io, the reference implementation of the language); derivatives are checked with
+//! central differences, whose O(h²) error bounds the tolerance (common practice).
+//!
 //! The generator is typed the way the engine types values: float expressions (species,
 //! parameters, float literals, anything mixed with a float), integer expressions (literals and
 //! `let`-bound integers only, so always compile-time constants, with checked arithmetic kept
