@@ -11,5 +11,6 @@
 
 pub mod geometry;
 pub mod kernel;
+pub mod linalg;
 pub mod mesh;
 pub mod output;
