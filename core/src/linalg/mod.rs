@@ -2,17 +2,46 @@
 //! matrix (numeric factorization or preconditioner set-up, the symbolic analysis reused while
 //! the sparsity pattern stays the same) and then used for any number of right-hand sides.
 //!
-//! Matrices are `sprs` CSR with sorted column indices; faer factors them (a CSR matrix is the
-//! CSC storage of its transpose, so no copy is made: the transpose is factored and solved
-//! transposed).
+//! Matrices are `sprs` CSR with sorted column indices, square. The module's parts:
+//!
+//! - `direct.rs`: [`DirectLu`], faer sparse LU (a CSR matrix is the CSC storage of its
+//!   transpose, so no copy is made: the transpose is factored and solved transposed).
+//! - `cholesky.rs`: [`SpdSolver`], faer sparse LLᵀ for symmetric positive definite operators
+//!   factored once (a species whose operator does not change).
+//! - `krylov.rs`: CG, BiCGSTAB, restarted GMRES (right preconditioned), stopping on the true
+//!   residual; a solve that does not reach the tolerance is [`LinalgError::NotConverged`].
+//! - `precond.rs`: Jacobi, ILU(0), and block preconditioners over species blocks (block
+//!   Gauss–Seidel or block diagonal; an immobile species' diagonal block is inverted exactly).
+//! - `amg.rs`: smoothed-aggregation multigrid V-cycle, aggregates reused on new values.
+//! - `ops.rs`: dot products with 8 accumulators, CSR mat-vec (rayon over row chunks from 1e5
+//!   rows; each row summed in order, so results do not depend on the thread count).
+//!
+//! Reproducibility: faer factorizations run sequentially by default
+//! ([`LinearParams::factor_threads`] = 1), every iteration is sequential or row-parallel with
+//! a fixed summation order, so results are bitwise repeatable.
 
+mod amg;
+mod cholesky;
 mod direct;
+mod krylov;
+mod ops;
+mod precond;
+#[cfg(test)]
+mod testmats;
+#[cfg(test)]
+mod tests;
 
 use serde::{Deserialize, Serialize};
 use sprs::CsMat;
 use thiserror::Error;
 
+pub use cholesky::SpdSolver;
 pub use direct::DirectLu;
+pub use krylov::Krylov;
+pub use precond::{BlockScheme, Preconditioner};
+
+use ops::Csr;
+use precond::{Apply, Block, Scalar};
 
 /// Which family of method solves the linear systems.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, Default)]
@@ -39,6 +68,18 @@ pub struct LinearParams {
     pub rtol: f64,
     /// Iteration cap.
     pub max_iterations: usize,
+    /// Krylov method of the iterative path.
+    pub krylov: Krylov,
+    /// Preconditioner of the iterative path (per species block when `blocks` > 1).
+    pub preconditioner: Preconditioner,
+    /// How species blocks are combined when `blocks` > 1.
+    pub block_scheme: BlockScheme,
+    /// Krylov vectors kept by GMRES before it restarts.
+    pub gmres_restart: usize,
+    /// Threads faer may use in direct factorizations and solves: 1 (default) is sequential
+    /// and bitwise reproducible; other counts let faer split dense kernels over rayon
+    /// (0 = the whole pool).
+    pub factor_threads: usize,
 }
 
 impl Default for LinearParams {
@@ -48,6 +89,11 @@ impl Default for LinearParams {
             direct_limit: 200_000,
             rtol: 1e-10,
             max_iterations: 500,
+            krylov: Krylov::Auto,
+            preconditioner: Preconditioner::Auto,
+            block_scheme: BlockScheme::GaussSeidel,
+            gmres_restart: 30,
+            factor_threads: 1,
         }
     }
 }
@@ -89,13 +135,58 @@ pub enum LinalgError {
     /// Memory or another failure inside the factorization library.
     #[error("factorization failed: {0}")]
     Backend(String),
+    /// A solver for symmetric matrices was given a nonsymmetric one.
+    #[error("the matrix is not symmetric")]
+    NotSymmetric,
+    /// The Cholesky factorization met a non-positive pivot.
+    #[error("the matrix is not positive definite (pivot at column {index})")]
+    NotPositiveDefinite {
+        /// Column of the failed pivot.
+        index: usize,
+    },
+}
+
+/// The preconditioner of the iterative path.
+enum Pc {
+    Scalar(Scalar),
+    Block(Block),
+}
+
+impl Pc {
+    fn as_apply(&mut self) -> &mut dyn Apply {
+        match self {
+            Pc::Scalar(p) => p,
+            Pc::Block(p) => p,
+        }
+    }
+}
+
+/// Iterative path state: the matrix copy the iteration multiplies with and its preconditioner.
+struct Iterative {
+    a: Csr,
+    blocks: usize,
+    symmetric: bool,
+    krylov: Krylov,
+    pc: Pc,
 }
 
 /// A linear solver for a sequence of matrices sharing one sparsity pattern.
-#[derive(Debug)]
 pub struct LinearSolver {
     params: LinearParams,
     direct: Option<DirectLu>,
+    iterative: Option<Iterative>,
+    /// Method of the last successful prepare (`None` before one, or after a failed one).
+    ready: Option<Method>,
+}
+
+impl std::fmt::Debug for LinearSolver {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("LinearSolver")
+            .field("params", &self.params)
+            .field("ready", &self.ready)
+            .field("krylov", &self.krylov())
+            .finish_non_exhaustive()
+    }
 }
 
 impl LinearSolver {
@@ -104,6 +195,8 @@ impl LinearSolver {
         Self {
             params,
             direct: None,
+            iterative: None,
+            ready: None,
         }
     }
 
@@ -112,56 +205,203 @@ impl LinearSolver {
         &self.params
     }
 
+    /// Method ([`Method::Direct`] or [`Method::Iterative`]) chosen by the last successful
+    /// prepare.
+    pub fn method(&self) -> Option<Method> {
+        self.ready
+    }
+
+    /// Krylov method the iterative path will use for the prepared matrix (`Auto` resolved).
+    pub fn krylov(&self) -> Option<Krylov> {
+        match self.ready {
+            Some(Method::Iterative) => self.iterative.as_ref().map(|it| it.krylov),
+            _ => None,
+        }
+    }
+
     /// Prepares for solves with `a` (square CSR, sorted indices). `blocks` is the number of
     /// equal, contiguous diagonal blocks the unknowns form (species-major ordering), which
     /// block preconditioners use; 1 for a scalar system.
     pub fn prepare(&mut self, a: &CsMat<f64>, blocks: usize) -> Result<(), LinalgError> {
+        self.ready = None;
         check_square(a)?;
-        let _ = blocks;
-        if a.data().iter().any(|v| !v.is_finite()) {
-            return Err(LinalgError::NonFinite);
+        if blocks == 0 || a.rows() % blocks != 0 {
+            return Err(LinalgError::Shape(format!(
+                "{} unknowns do not form {blocks} equal blocks",
+                a.rows()
+            )));
         }
+        check_finite(a.data())?;
+        let method = match self.params.method {
+            Method::Auto if a.rows() <= self.params.direct_limit => Method::Direct,
+            Method::Auto => Method::Iterative,
+            m => m,
+        };
+        match method {
+            Method::Direct => self.prepare_direct(a)?,
+            _ => {
+                let result = self.prepare_iterative(a, blocks);
+                if result.is_err() {
+                    self.iterative = None;
+                }
+                result?
+            }
+        }
+        self.ready = Some(method);
+        Ok(())
+    }
+
+    fn prepare_direct(&mut self, a: &CsMat<f64>) -> Result<(), LinalgError> {
         match &mut self.direct {
             Some(lu) if lu.same_pattern(a) => lu.refactor(a),
             slot => {
-                *slot = Some(DirectLu::new(a)?);
+                *slot = None;
+                *slot = Some(DirectLu::with_threads(a, self.params.factor_threads)?);
                 Ok(())
             }
         }
     }
 
+    fn prepare_iterative(&mut self, a: &CsMat<f64>, blocks: usize) -> Result<(), LinalgError> {
+        let p = &self.params;
+        let csr = Csr::from_sprs(a);
+        // Checked at every prepare: a transport matrix is symmetric while the potential is flat
+        // and stops being so later.
+        let symmetric = csr.is_symmetric(1e-13);
+        let krylov = match p.krylov {
+            Krylov::Auto if symmetric => Krylov::Cg,
+            Krylov::Auto => Krylov::Gmres,
+            k => k,
+        };
+        // CG needs a symmetric preconditioner; block Gauss–Seidel is not.
+        let scheme = if krylov == Krylov::Cg {
+            BlockScheme::Diagonal
+        } else {
+            p.block_scheme
+        };
+        let kind = match p.preconditioner {
+            Preconditioner::Auto => Preconditioner::Amg,
+            k => k,
+        };
+        let reuse = match &self.iterative {
+            Some(it) => {
+                it.blocks == blocks
+                    && it.a.same_pattern(a)
+                    && (it.krylov == Krylov::Cg) == (krylov == Krylov::Cg)
+            }
+            None => false,
+        };
+        if reuse {
+            if let Some(it) = &mut self.iterative {
+                match &mut it.pc {
+                    Pc::Scalar(s) => s.refresh(&csr)?,
+                    Pc::Block(b) => b.refresh(&csr)?,
+                }
+                it.a = csr;
+                it.symmetric = symmetric;
+                it.krylov = krylov;
+            }
+            return Ok(());
+        }
+        self.iterative = None;
+        let pc = if blocks == 1 {
+            Pc::Scalar(Scalar::new(kind, &csr)?)
+        } else {
+            Pc::Block(Block::new(&csr, blocks, kind, scheme)?)
+        };
+        self.iterative = Some(Iterative {
+            a: csr,
+            blocks,
+            symmetric,
+            krylov,
+            pc,
+        });
+        Ok(())
+    }
+
     /// Solves `a x = b` for the matrix last prepared; `x` holds the initial guess on entry
     /// (used by iterations) and the solution on return.
     pub fn solve(&mut self, b: &[f64], x: &mut [f64]) -> Result<LinearInfo, LinalgError> {
-        let lu = self
-            .direct
-            .as_ref()
-            .ok_or_else(|| LinalgError::Shape("solve before prepare".into()))?;
-        if b.len() != lu.dim() || x.len() != lu.dim() {
+        let method = self
+            .ready
+            .ok_or_else(|| LinalgError::Shape("solve before a successful prepare".into()))?;
+        let n = match method {
+            Method::Direct => self.direct.as_ref().map(|d| d.dim()),
+            _ => self.iterative.as_ref().map(|it| it.a.n),
+        }
+        .ok_or_else(|| LinalgError::Shape("solve before a successful prepare".into()))?;
+        if b.len() != n || x.len() != n {
             return Err(LinalgError::Shape(format!(
-                "system of {} unknowns, right-hand side {}, solution {}",
-                lu.dim(),
+                "system of {n} unknowns, right-hand side {}, solution {}",
                 b.len(),
                 x.len()
             )));
         }
-        if b.iter().any(|v| !v.is_finite()) {
-            return Err(LinalgError::NonFinite);
+        check_finite(b)?;
+        match method {
+            Method::Direct => self.solve_direct(b, x),
+            _ => {
+                check_finite(x)?;
+                self.solve_iterative(b, x)
+            }
         }
+    }
+
+    fn solve_direct(&mut self, b: &[f64], x: &mut [f64]) -> Result<LinearInfo, LinalgError> {
+        let lu = self
+            .direct
+            .as_mut()
+            .ok_or_else(|| LinalgError::Shape("solve before prepare".into()))?;
         x.copy_from_slice(b);
-        lu.solve_in_place(x);
-        if x.iter().any(|v| !v.is_finite()) {
-            return Err(LinalgError::NonFinite);
-        }
+        lu.solve_in_place(x)?;
+        check_finite(x)?;
         Ok(LinearInfo {
             method: Method::Direct,
             iterations: 0,
             relative_residual: 0.0,
         })
     }
+
+    fn solve_iterative(&mut self, b: &[f64], x: &mut [f64]) -> Result<LinearInfo, LinalgError> {
+        let p = &self.params;
+        let stop = krylov::Stop {
+            rtol: p.rtol,
+            max_iterations: p.max_iterations,
+        };
+        let restart = p.gmres_restart;
+        let auto = p.krylov == Krylov::Auto;
+        let it = self
+            .iterative
+            .as_mut()
+            .ok_or_else(|| LinalgError::Shape("solve before prepare".into()))?;
+        let guess = x.to_vec();
+        let pc = it.pc.as_apply();
+        let outcome = match it.krylov {
+            Krylov::Cg => {
+                let first = krylov::cg(&it.a, pc, b, x, stop);
+                if auto && matches!(first, Err(LinalgError::NotConverged { .. })) {
+                    // Symmetric but not positive definite (or CG stalled): GMRES does not
+                    // need definiteness. The symmetric preconditioner is still valid for it.
+                    x.copy_from_slice(&guess);
+                    krylov::gmres(&it.a, pc, b, x, stop, restart)
+                } else {
+                    first
+                }
+            }
+            Krylov::Bicgstab => krylov::bicgstab(&it.a, pc, b, x, stop),
+            Krylov::Gmres | Krylov::Auto => krylov::gmres(&it.a, pc, b, x, stop, restart),
+        };
+        let (iterations, relative_residual) = outcome?;
+        check_finite(x)?;
+        Ok(LinearInfo {
+            method: Method::Iterative,
+            iterations,
+            relative_residual,
+        })
+    }
 }
 
-fn check_square(a: &CsMat<f64>) -> Result<(), LinalgError> {
+pub(crate) fn check_square(a: &CsMat<f64>) -> Result<(), LinalgError> {
     if !a.is_csr() || a.rows() != a.cols() {
         return Err(LinalgError::Shape(format!(
             "expected a square CSR matrix, got {}x{} ({})",
@@ -171,4 +411,12 @@ fn check_square(a: &CsMat<f64>) -> Result<(), LinalgError> {
         )));
     }
     Ok(())
+}
+
+pub(crate) fn check_finite(v: &[f64]) -> Result<(), LinalgError> {
+    if v.iter().all(|x| x.is_finite()) {
+        Ok(())
+    } else {
+        Err(LinalgError::NonFinite)
+    }
 }

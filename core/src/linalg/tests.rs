@@ -1,0 +1,1 @@
+//! Tests of the [`super::LinearSolver`] dispatch, each method against the direct LU.
