@@ -37,7 +37,7 @@ struct Level {
 }
 
 enum Coarse {
-    Lu(DirectLu),
+    Lu(Box<DirectLu>),
     /// The coarsest matrix could not be factored (e.g. singular): smooth instead.
     Smooth,
 }
@@ -85,10 +85,10 @@ fn aggregate(a: &Csr) -> (Vec<usize>, usize) {
         count += 1;
     }
     let first = agg.clone();
-    for i in 0..n {
-        if agg[i] == FREE {
+    for (i, g) in agg.iter_mut().enumerate() {
+        if *g == FREE {
             if let Some(j) = strong(i).find(|&j| first[j] != FREE) {
-                agg[i] = first[j];
+                *g = first[j];
             }
         }
     }
@@ -136,8 +136,8 @@ fn transfer(a: &Csr, agg: &[usize], nc: usize) -> Result<(Csr, Csr, Csr), Linalg
     let p0 = tentative(agg, nc);
     let ap = &a_sp * &p0;
     let mut ap = Csr::from_sprs(&ap);
-    for i in 0..ap.n {
-        let s = omega / d[i];
+    for (i, di) in d.iter().enumerate() {
+        let s = omega / di;
         let r = ap.ptr[i]..ap.ptr[i + 1];
         ap.val[r].iter_mut().for_each(|v| *v *= s);
     }
@@ -211,7 +211,7 @@ impl Amg {
         let sp = a.to_sprs();
         let lu = match old {
             Some(Coarse::Lu(mut lu)) if lu.same_pattern(&sp) => lu.refactor(&sp).map(|_| lu),
-            _ => DirectLu::new(&sp),
+            _ => DirectLu::new(&sp).map(Box::new),
         };
         lu.map(Coarse::Lu).unwrap_or(Coarse::Smooth)
     }

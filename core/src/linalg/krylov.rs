@@ -87,7 +87,7 @@ pub(crate) fn cg(a: &Csr, pc: &mut dyn Apply, b: &[f64], x: &mut [f64], stop: St
         while it < stop.max_iterations {
             a.matvec(&p, &mut q);
             let pq = dot(&p, &q);
-            if !(pq > 0.0) || !(rz > 0.0) {
+            if pq.is_nan() || rz.is_nan() || pq <= 0.0 || rz <= 0.0 {
                 // Not positive definite (or preconditioner not SPD): CG does not apply.
                 res = finite(true_residual(a, b, x, &mut r, bnorm))?;
                 return Err(not_converged(it, res));

@@ -160,3 +160,11 @@ pub fn relative_residual(a: &CsMat<f64>, x: &[f64], b: &[f64]) -> f64 {
     }
     r2.sqrt() / b.iter().map(|v| v * v).sum::<f64>().sqrt()
 }
+
+/// K alone (singular: constants are in its kernel).
+pub fn laplacian_only(mesh: &Mesh) -> CsMat<f64> {
+    let n = mesh.num_nodes();
+    let mut t = TriMat::new((n, n));
+    add_laplacian(&mut t, mesh, 1.0, 0, 0);
+    t.to_csr()
+}

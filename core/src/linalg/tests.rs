@@ -1,1 +1,300 @@
-//! Tests of the [`super::LinearSolver`] dispatch, each method against the direct LU.
+//! Tests of the [`super::LinearSolver`] dispatch: every iterative method and preconditioner
+//! against the direct LU (itself checked against faer's dense LU in `direct.rs`), multigrid
+//! iteration counts across mesh sizes, and the failure paths.
+
+use super::testmats::{self, relative_residual};
+use super::*;
+use proptest::prelude::*;
+
+fn params(krylov: Krylov, preconditioner: Preconditioner) -> LinearParams {
+    LinearParams {
+        method: Method::Iterative,
+        krylov,
+        preconditioner,
+        ..Default::default()
+    }
+}
+
+fn direct_solution(a: &CsMat<f64>, b: &[f64]) -> Vec<f64> {
+    let mut x = b.to_vec();
+    DirectLu::new(a).unwrap().solve_in_place(&mut x).unwrap();
+    x
+}
+
+/// Iterative solution within `tol` (relative, max norm) of the direct LU solution.
+fn check_against_lu(a: &CsMat<f64>, blocks: usize, p: LinearParams, tol: f64) -> LinearInfo {
+    let b = testmats::rhs(a.rows(), 11);
+    let want = direct_solution(a, &b);
+    let mut s = LinearSolver::new(p.clone());
+    s.prepare(a, blocks).unwrap();
+    let mut x = vec![0.0; a.rows()];
+    let info = s.solve(&b, &mut x).unwrap_or_else(|e| panic!("{p:?}: {e}"));
+    assert_eq!(info.method, Method::Iterative);
+    assert!(info.relative_residual <= p.rtol, "{info:?}");
+    assert!(relative_residual(a, &x, &b) <= 1.01 * p.rtol, "{p:?}");
+    let scale = want.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    let err = x
+        .iter()
+        .zip(&want)
+        .fold(0.0f64, |m, (g, w)| m.max((g - w).abs()));
+    assert!(
+        err <= tol * scale,
+        "{p:?}: error {err:e} (scale {scale:e}), {info:?}"
+    );
+    info
+}
+
+#[test]
+fn every_method_and_preconditioner_matches_the_direct_lu() {
+    let mesh = testmats::disk_mesh(0.06);
+    let diffusion = testmats::diffusion(&mesh, 1e-2);
+    let transport = testmats::transport(&mesh, 1e-2, 3.0);
+    let pcs = [
+        Preconditioner::None,
+        Preconditioner::Jacobi,
+        Preconditioner::Ilu0,
+        Preconditioner::Amg,
+    ];
+    for pc in pcs {
+        check_against_lu(&diffusion, 1, params(Krylov::Cg, pc), 1e-7);
+        for k in [Krylov::Bicgstab, Krylov::Gmres] {
+            check_against_lu(&diffusion, 1, params(k, pc), 1e-7);
+            check_against_lu(&transport, 1, params(k, pc), 1e-7);
+        }
+    }
+}
+
+#[test]
+fn block_preconditioners_match_the_direct_lu_on_coupled_species() {
+    let mesh = testmats::disk_mesh(0.06);
+    for species in [2, 3] {
+        let a = testmats::coupled_species(&mesh, 1e-2, species);
+        for pc in [
+            Preconditioner::Ilu0,
+            Preconditioner::Amg,
+            Preconditioner::Jacobi,
+        ] {
+            for scheme in [BlockScheme::GaussSeidel, BlockScheme::Diagonal] {
+                let p = LinearParams {
+                    block_scheme: scheme,
+                    ..params(Krylov::Gmres, pc)
+                };
+                check_against_lu(&a, species, p.clone(), 1e-7);
+                check_against_lu(
+                    &a,
+                    species,
+                    LinearParams {
+                        krylov: Krylov::Bicgstab,
+                        ..p
+                    },
+                    1e-7,
+                );
+            }
+        }
+    }
+}
+
+#[test]
+fn auto_chooses_by_size_and_symmetry() {
+    let mesh = testmats::disk_mesh(0.1);
+    let d = testmats::diffusion(&mesh, 1e-2);
+    let t = testmats::transport(&mesh, 1e-2, 3.0);
+    let mut s = LinearSolver::new(LinearParams::default());
+    s.prepare(&d, 1).unwrap();
+    assert_eq!(s.method(), Some(Method::Direct));
+    let mut s = LinearSolver::new(LinearParams {
+        direct_limit: 10,
+        ..Default::default()
+    });
+    s.prepare(&d, 1).unwrap();
+    assert_eq!(
+        (s.method(), s.krylov()),
+        (Some(Method::Iterative), Some(Krylov::Cg))
+    );
+    // Same pattern, now nonsymmetric values: the check is redone.
+    s.prepare(&t, 1).unwrap();
+    assert_eq!(s.krylov(), Some(Krylov::Gmres));
+    let b = testmats::rhs(t.rows(), 4);
+    let mut x = vec![0.0; t.rows()];
+    let info = s.solve(&b, &mut x).unwrap();
+    assert!(relative_residual(&t, &x, &b) <= 1e-10, "{info:?}");
+    // A flat potential makes the transport matrix symmetric (B(0) = 1 on every edge).
+    let flat = testmats::transport(&mesh, 1e-2, 0.0);
+    s.prepare(&flat, 1).unwrap();
+    assert_eq!(s.krylov(), Some(Krylov::Cg));
+}
+
+#[test]
+fn direct_and_iterative_paths_refill_values_on_the_same_pattern() {
+    let mesh = testmats::disk_mesh(0.08);
+    for method in [Method::Direct, Method::Iterative] {
+        let mut s = LinearSolver::new(LinearParams {
+            method,
+            ..Default::default()
+        });
+        for dt in [1e-3, 1e-1, 10.0] {
+            let a = testmats::transport(&mesh, dt, 2.0);
+            s.prepare(&a, 1).unwrap();
+            let b = testmats::rhs(a.rows(), 9);
+            let mut x = vec![0.0; a.rows()];
+            s.solve(&b, &mut x).unwrap();
+            assert!(relative_residual(&a, &x, &b) <= 1e-10, "{method:?} dt {dt}");
+        }
+    }
+}
+
+#[test]
+fn multigrid_cg_iterations_stay_flat_as_the_mesh_is_refined() {
+    // Fixed dt on a unit disk: dt·D/h² grows from ~5 to ~300, the regime where unpreconditioned
+    // counts grow like 1/h. Nodes ≈ 3.6/h² (measured on these meshes).
+    let mut counts = Vec::new();
+    for h in [0.042, 0.0062] {
+        let mesh = testmats::disk_mesh(h);
+        let a = testmats::diffusion(&mesh, 1e-2);
+        let mut s = LinearSolver::new(params(Krylov::Cg, Preconditioner::Amg));
+        s.prepare(&a, 1).unwrap();
+        let b = testmats::rhs(a.rows(), 1);
+        let mut x = vec![0.0; a.rows()];
+        let info = s.solve(&b, &mut x).unwrap();
+        counts.push((a.rows(), info.iterations));
+    }
+    let (small, large) = (counts[0], counts[1]);
+    assert!(small.0 < 3000 && large.0 > 90_000, "{counts:?}");
+    assert!(
+        large.1 as f64 <= 1.5 * small.1 as f64,
+        "CG+AMG iterations grew: {counts:?}"
+    );
+}
+
+#[test]
+fn iterative_solves_are_bitwise_repeatable() {
+    let mesh = testmats::disk_mesh(0.05);
+    let a = testmats::coupled(&mesh, 1e-2);
+    let b = testmats::rhs(a.rows(), 3);
+    let mut runs = Vec::new();
+    for _ in 0..2 {
+        let mut s = LinearSolver::new(params(Krylov::Gmres, Preconditioner::Amg));
+        s.prepare(&a, 2).unwrap();
+        let mut x = vec![0.0; a.rows()];
+        s.solve(&b, &mut x).unwrap();
+        runs.push(x);
+    }
+    assert!(runs[0]
+        .iter()
+        .zip(&runs[1])
+        .all(|(p, q)| p.to_bits() == q.to_bits()));
+}
+
+#[test]
+fn failures_are_typed_errors() {
+    let mesh = testmats::disk_mesh(0.1);
+    let a = testmats::diffusion(&mesh, 1e-2);
+    let n = a.rows();
+    for method in [Method::Direct, Method::Iterative] {
+        let mut s = LinearSolver::new(LinearParams {
+            method,
+            ..Default::default()
+        });
+        let mut x = vec![0.0; n];
+        assert!(matches!(
+            s.solve(&vec![1.0; n], &mut x),
+            Err(LinalgError::Shape(_))
+        ));
+        assert!(matches!(s.prepare(&a, 0), Err(LinalgError::Shape(_))));
+        assert!(matches!(s.prepare(&a, 7), Err(LinalgError::Shape(_))) || n % 7 == 0);
+        let rect = CsMat::<f64>::zero((3, 4));
+        assert!(matches!(s.prepare(&rect, 1), Err(LinalgError::Shape(_))));
+        let mut bad = a.clone();
+        bad.data_mut()[0] = f64::INFINITY;
+        assert_eq!(s.prepare(&bad, 1), Err(LinalgError::NonFinite));
+        s.prepare(&a, 1).unwrap();
+        assert!(matches!(
+            s.solve(&[1.0], &mut x),
+            Err(LinalgError::Shape(_))
+        ));
+        let mut b = vec![1.0; n];
+        b[2] = f64::NAN;
+        assert_eq!(s.solve(&b, &mut x), Err(LinalgError::NonFinite));
+        // A zero row: singular for the factorization and the preconditioners' set-up.
+        let mut sing = a.clone();
+        testmats::zero_row(&mut sing, 3);
+        assert!(matches!(
+            s.prepare(&sing, 1),
+            Err(LinalgError::Singular { .. })
+        ));
+        // After a failed prepare nothing stale is solved with.
+        assert!(matches!(
+            s.solve(&vec![1.0; n], &mut x),
+            Err(LinalgError::Shape(_))
+        ));
+    }
+}
+
+#[test]
+fn an_inconsistent_singular_system_does_not_converge() {
+    // Neumann Laplacian (no mass): constants span the kernel, and b = e₀ has a nonzero mean,
+    // so no x solves it. The iteration must say so instead of returning its last iterate.
+    let mesh = testmats::disk_mesh(0.1);
+    let k = testmats::laplacian_only(&mesh);
+    let n = k.rows();
+    let mut b = vec![0.0; n];
+    b[0] = 1.0;
+    for (krylov, pc) in [
+        (Krylov::Cg, Preconditioner::Jacobi),
+        (Krylov::Gmres, Preconditioner::Amg),
+        (Krylov::Bicgstab, Preconditioner::Ilu0),
+    ] {
+        let mut s = LinearSolver::new(LinearParams {
+            max_iterations: 200,
+            ..params(krylov, pc)
+        });
+        let r = s.prepare(&k, 1);
+        if let Err(e) = r {
+            assert!(matches!(e, LinalgError::Singular { .. }), "{e}");
+            continue;
+        }
+        let mut x = vec![0.0; n];
+        match s.solve(&b, &mut x) {
+            Err(LinalgError::NotConverged { residual, .. }) => assert!(residual > 1e-10),
+            other => panic!("{krylov:?}/{pc:?}: {other:?}"),
+        }
+    }
+}
+
+#[test]
+fn a_zero_right_hand_side_gives_zero() {
+    let mesh = testmats::disk_mesh(0.1);
+    let a = testmats::transport(&mesh, 1e-2, 1.0);
+    let mut s = LinearSolver::new(params(Krylov::Gmres, Preconditioner::Ilu0));
+    s.prepare(&a, 1).unwrap();
+    let mut x = vec![1.0; a.rows()];
+    let info = s.solve(&vec![0.0; a.rows()], &mut x).unwrap();
+    assert_eq!(info.iterations, 0);
+    assert!(x.iter().all(|v| *v == 0.0));
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(24))]
+    /// Any right-hand side and initial guess: the reported and the true residual meet rtol.
+    #[test]
+    fn random_right_hand_sides_meet_the_tolerance(
+        seed in any::<u64>(),
+        guess in -1.0f64..1.0,
+        dt in 1e-4f64..1.0,
+        which in 0usize..3,
+    ) {
+        let mesh = testmats::disk_mesh(0.12);
+        let (a, blocks, krylov) = match which {
+            0 => (testmats::diffusion(&mesh, dt), 1, Krylov::Cg),
+            1 => (testmats::transport(&mesh, dt, 3.0), 1, Krylov::Bicgstab),
+            _ => (testmats::coupled(&mesh, dt), 2, Krylov::Gmres),
+        };
+        let mut s = LinearSolver::new(params(krylov, Preconditioner::Auto));
+        s.prepare(&a, blocks).unwrap();
+        let b = testmats::rhs(a.rows(), seed);
+        let mut x = vec![guess; a.rows()];
+        let info = s.solve(&b, &mut x).unwrap();
+        prop_assert!(info.relative_residual <= 1e-10);
+        prop_assert!(relative_residual(&a, &x, &b) <= 1.01e-10);
+    }
+}
