@@ -48,7 +48,7 @@ impl KernelInput<'_> {
 }
 
 /// A shape mismatch between a kernel and the buffers handed to it.
-#[derive(Debug, Error, PartialEq, Eq)]
+#[derive(Debug, Error, Clone, PartialEq, Eq)]
 pub enum KernelError {
     /// The number of species slices differs from what the kernel reads.
     #[error("kernel reads {expected} species but was given {got}")]

@@ -9,8 +9,11 @@
 
 #![deny(missing_docs)]
 
+pub mod fem;
 pub mod geometry;
 pub mod kernel;
 pub mod linalg;
 pub mod mesh;
 pub mod output;
+pub mod problem;
+pub mod time;

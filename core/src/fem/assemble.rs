@@ -1,0 +1,447 @@
+//! Residual and Jacobian of the semi-discrete system, refilled in place.
+//!
+//! For species r at node i (lumped mass mᵢ, node graph with cotangent weights w_e):
+//!
+//! ```text
+//! mobile:        mᵢ (a·Uᵢ + hᵢ) + Σ_e F_e − mᵢ fᵣ(Uᵢ) = 0
+//! immobile:      mᵢ (a·Uᵢ + hᵢ)          − mᵢ fᵣ(Uᵢ) = 0
+//! quasi-steady:                  Σ_e F_e − mᵢ fᵣ(Uᵢ) = 0
+//! ```
+//!
+//! where `a·U + h` is the time stepper's difference quotient and F_e the flux out of i along
+//! edge e = (i, j). Without a mobility factor the flux is exponentially fitted
+//! (Scharfetter–Gummel; Xu & Zikatanov 1999):
+//! F = w·D·[B(−Δ/D) uᵢ − B(Δ/D) uⱼ], Δ = Σ_k (χ_k(Uⱼ) − χ_k(Uᵢ)), B(x) = x/(eˣ − 1), which is
+//! exact for the no-flux state u ∝ exp(Φ/D), antisymmetric (so Σᵢ of the flux terms is zero:
+//! mass is conserved exactly) and gives an M-matrix on Delaunay meshes (w ≥ 0). With a mobility
+//! factor f (volume filling) the flux is F = w·[D(uᵢ − uⱼ) + Σ_k f_k(U_up) Δ_k], the mobility
+//! taken at the upstream node of each term. A sensitivity given as χ'(c) enters through the
+//! trapezoidal potential difference Δ = ½(χ'ᵢ + χ'ⱼ)(cⱼ − cᵢ).
+
+use crate::kernel::{BatchKernel, KernelError, KernelInput, Scratch, SensitivityForm, SpeciesKind};
+use crate::mesh::Mesh;
+use crate::problem::Problem;
+
+use super::bernoulli::bernoulli;
+use super::pattern::{BlockKind, BlockLayout, NodeGraph};
+
+/// The transport of one species: diffusion plus the chemotaxis terms that move it.
+#[derive(Clone, Debug)]
+struct Transport {
+    species: usize,
+    diffusion: f64,
+    terms: Vec<usize>,
+    upwind: bool,
+    /// Species the fluxes depend on (including the transported one).
+    deps: Vec<usize>,
+}
+
+/// The time-derivative part handed in by the stepper: for non-quasi-steady species the
+/// equation holds mᵢ (coef·Uᵢ + hist[r·N + i]).
+#[derive(Clone, Copy, Debug)]
+pub struct TimeTerm<'a> {
+    /// Coefficient of the new value (e.g. 1/dt for backward Euler).
+    pub coef: f64,
+    /// The rest of the difference quotient (e.g. −Uⁿ/dt), species-major.
+    pub hist: &'a [f64],
+}
+
+/// Mesh data and problem structure needed every step, prepared once.
+pub struct Discretisation {
+    /// Node graph of the mesh.
+    pub graph: NodeGraph,
+    /// Lumped mass (node areas).
+    pub mass: Vec<f64>,
+    edges: Vec<[usize; 2]>,
+    weights: Vec<f64>,
+    /// Node x coordinates.
+    pub x: Vec<f64>,
+    /// Node y coordinates.
+    pub y: Vec<f64>,
+    kinds: Vec<SpeciesKind>,
+    transports: Vec<Transport>,
+    /// `reaction_deps[r][s]`: reaction r depends on species s.
+    reaction_deps: Vec<Vec<bool>>,
+}
+
+/// Kernel outputs at the current state, reused between evaluations.
+#[derive(Default)]
+pub struct Workspace {
+    reaction: Vec<f64>,
+    reaction_jac: Vec<f64>,
+    chi: Vec<Vec<f64>>,
+    chi_jac: Vec<Vec<f64>>,
+    factor: Vec<Vec<f64>>,
+    factor_jac: Vec<Vec<f64>>,
+    scratch: Scratch,
+    /// Per-term potential differences and their derivatives on one edge.
+    delta: Vec<f64>,
+    gi: Vec<f64>,
+    gj: Vec<f64>,
+}
+
+impl Discretisation {
+    /// Prepares the operators of `problem` (validated) on `mesh`.
+    pub fn new(mesh: &Mesh, problem: &Problem) -> Self {
+        let s_count = problem.n_species();
+        let mut transports = Vec::new();
+        for (s, sp) in problem.species.iter().enumerate() {
+            let terms: Vec<usize> = (0..problem.chemotaxis.len())
+                .filter(|&k| problem.chemotaxis[k].cells == s)
+                .collect();
+            let diffusion = sp.kind.diffusion();
+            if sp.kind == SpeciesKind::Immobile || (diffusion == 0.0 && terms.is_empty()) {
+                continue;
+            }
+            let upwind = terms
+                .iter()
+                .any(|&k| problem.chemotaxis[k].factor.is_some());
+            let mut deps = vec![s];
+            for &k in &terms {
+                let c = &problem.chemotaxis[k];
+                for d in 0..s_count {
+                    let uses = c.sensitivity.depends_on(0, d)
+                        || (c.form == SensitivityForm::Derivative && d == c.signal)
+                        || c.factor.as_ref().is_some_and(|f| f.depends_on(0, d));
+                    if uses && !deps.contains(&d) {
+                        deps.push(d);
+                    }
+                }
+            }
+            deps.sort_unstable();
+            transports.push(Transport {
+                species: s,
+                diffusion,
+                terms,
+                upwind,
+                deps,
+            });
+        }
+        let reaction_deps = (0..s_count)
+            .map(|r| {
+                (0..s_count)
+                    .map(|s| problem.reactions.depends_on(r, s))
+                    .collect()
+            })
+            .collect();
+        Self {
+            graph: NodeGraph::new(mesh),
+            mass: mesh.node_areas.clone(),
+            edges: mesh.edges.clone(),
+            weights: mesh.edge_weights.clone(),
+            x: mesh.nodes.column(0).to_vec(),
+            y: mesh.nodes.column(1).to_vec(),
+            kinds: problem.species.iter().map(|s| s.kind).collect(),
+            transports,
+            reaction_deps,
+        }
+    }
+
+    /// Number of nodes.
+    pub fn nodes(&self) -> usize {
+        self.mass.len()
+    }
+
+    /// Block kind of the coupled Jacobian between species r's equation and species s.
+    pub fn block_kind(&self, r: usize, s: usize) -> BlockKind {
+        if let Some(t) = self.transports.iter().find(|t| t.species == r) {
+            if t.deps.contains(&s) {
+                return BlockKind::Graph;
+            }
+        }
+        if r == s || self.reaction_deps[r][s] {
+            BlockKind::Diagonal
+        } else {
+            BlockKind::None
+        }
+    }
+
+    /// The layout of the system over `species` (ascending indices).
+    pub fn layout(&self, species: &[usize]) -> BlockLayout {
+        BlockLayout::new(&self.graph, self.kinds.len(), species, |r, s| {
+            self.block_kind(r, s)
+        })
+    }
+
+    /// Evaluates every kernel at state `u` (species-major), with derivatives when `jac`.
+    pub fn evaluate(
+        &self,
+        problem: &Problem,
+        u: &[f64],
+        t: f64,
+        jac: bool,
+        ws: &mut Workspace,
+    ) -> Result<(), KernelError> {
+        let n = self.nodes();
+        let sc = problem.n_species();
+        let slices: Vec<&[f64]> = (0..sc).map(|s| &u[s * n..(s + 1) * n]).collect();
+        let input = KernelInput {
+            species: &slices,
+            x: &self.x,
+            y: &self.y,
+            t,
+        };
+        let k = problem.chemotaxis.len();
+        ws.chi.resize_with(k, Vec::new);
+        ws.chi_jac.resize_with(k, Vec::new);
+        ws.factor.resize_with(k, Vec::new);
+        ws.factor_jac.resize_with(k, Vec::new);
+        let run = |kernel: &dyn BatchKernel,
+                   out: &mut Vec<f64>,
+                   d: &mut Vec<f64>,
+                   scratch: &mut Scratch|
+         -> Result<(), KernelError> {
+            out.resize(kernel.n_outputs() * n, 0.0);
+            if jac {
+                d.resize(kernel.n_outputs() * sc * n, 0.0);
+                kernel.eval_with_jacobian(&input, out, d, scratch)
+            } else {
+                kernel.eval(&input, out, scratch)
+            }
+        };
+        run(
+            &*problem.reactions,
+            &mut ws.reaction,
+            &mut ws.reaction_jac,
+            &mut ws.scratch,
+        )?;
+        for (c, term) in problem.chemotaxis.iter().enumerate() {
+            run(
+                &*term.sensitivity,
+                &mut ws.chi[c],
+                &mut ws.chi_jac[c],
+                &mut ws.scratch,
+            )?;
+            if let Some(f) = &term.factor {
+                run(
+                    &**f,
+                    &mut ws.factor[c],
+                    &mut ws.factor_jac[c],
+                    &mut ws.scratch,
+                )?;
+            }
+        }
+        Ok(())
+    }
+
+    /// The residual G(U) (species-major, length S·N) from the kernel values last evaluated
+    /// at `u`, and, when `jac` is given, the Jacobian entries of its layout (values
+    /// overwritten; kernels must have been evaluated with derivatives).
+    pub fn assemble(
+        &self,
+        problem: &Problem,
+        u: &[f64],
+        time: TimeTerm<'_>,
+        ws: &mut Workspace,
+        residual: &mut [f64],
+        mut jac: Option<(&BlockLayout, &mut [f64])>,
+    ) {
+        let n = self.nodes();
+        let sc = problem.n_species();
+        let g = &self.graph;
+        if let Some((_, vals)) = jac.as_mut() {
+            vals.iter_mut().for_each(|v| *v = 0.0);
+        }
+        // Node terms: time derivative and reactions.
+        for r in 0..sc {
+            let steady = matches!(self.kinds[r], SpeciesKind::QuasiSteady { .. });
+            for i in 0..n {
+                let m = self.mass[i];
+                let k = r * n + i;
+                let mut v = -m * ws.reaction[k];
+                if !steady {
+                    v += m * (time.coef * u[k] + time.hist[k]);
+                }
+                residual[k] = v;
+            }
+            if let Some((layout, vals)) = jac.as_mut() {
+                if layout.slot(r).is_none() {
+                    continue;
+                }
+                for s in 0..sc {
+                    let time_part = r == s && !steady;
+                    if !(time_part || self.reaction_deps[r][s]) {
+                        continue;
+                    }
+                    let d = &ws.reaction_jac;
+                    for i in 0..n {
+                        let Some(p) = layout.pos(g, r, s, i, g.diag[i]) else {
+                            break;
+                        };
+                        let mut v = 0.0;
+                        if self.reaction_deps[r][s] {
+                            v -= self.mass[i] * d[(r * sc + s) * n + i];
+                        }
+                        if time_part {
+                            v += self.mass[i] * time.coef;
+                        }
+                        vals[p] += v;
+                    }
+                }
+            }
+        }
+        for tr in &self.transports {
+            self.assemble_transport(
+                problem,
+                tr,
+                u,
+                ws,
+                residual,
+                jac.as_mut().map(|(l, v)| (*l, &mut **v)),
+            );
+        }
+    }
+
+    fn assemble_transport(
+        &self,
+        problem: &Problem,
+        tr: &Transport,
+        u: &[f64],
+        ws: &mut Workspace,
+        residual: &mut [f64],
+        mut jac: Option<(&BlockLayout, &mut [f64])>,
+    ) {
+        let n = self.nodes();
+        let sc = problem.n_species();
+        let g = &self.graph;
+        let r = tr.species;
+        let d = tr.diffusion;
+        let nt = tr.terms.len();
+        ws.delta.resize(nt, 0.0);
+        ws.gi.resize(nt * sc, 0.0);
+        ws.gj.resize(nt * sc, 0.0);
+        let mut acc_i = vec![0.0; sc];
+        let mut acc_j = vec![0.0; sc];
+        let want_jac = jac.as_ref().is_some_and(|(l, _)| l.slot(r).is_some());
+        for (e, &[i, j]) in self.edges.iter().enumerate() {
+            let w = self.weights[e];
+            let (ui, uj) = (u[r * n + i], u[r * n + j]);
+            // Potential differences of every term on this edge, with ∂Δ/∂s at i and at j.
+            for (t, &c) in tr.terms.iter().enumerate() {
+                let term = &problem.chemotaxis[c];
+                let chi = &ws.chi[c];
+                let gi = &mut ws.gi[t * sc..(t + 1) * sc];
+                let gj = &mut ws.gj[t * sc..(t + 1) * sc];
+                gi.iter_mut().for_each(|v| *v = 0.0);
+                gj.iter_mut().for_each(|v| *v = 0.0);
+                match term.form {
+                    SensitivityForm::Potential => {
+                        ws.delta[t] = chi[j] - chi[i];
+                        if want_jac {
+                            for &s in &tr.deps {
+                                gi[s] = -ws.chi_jac[c][s * n + i];
+                                gj[s] = ws.chi_jac[c][s * n + j];
+                            }
+                        }
+                    }
+                    SensitivityForm::Derivative => {
+                        let sig = term.signal;
+                        let dc = u[sig * n + j] - u[sig * n + i];
+                        let mean = 0.5 * (chi[i] + chi[j]);
+                        ws.delta[t] = mean * dc;
+                        if want_jac {
+                            for &s in &tr.deps {
+                                gi[s] = 0.5 * ws.chi_jac[c][s * n + i] * dc;
+                                gj[s] = 0.5 * ws.chi_jac[c][s * n + j] * dc;
+                            }
+                            gi[sig] -= mean;
+                            gj[sig] += mean;
+                        }
+                    }
+                }
+            }
+            acc_i.iter_mut().for_each(|v| *v = 0.0);
+            acc_j.iter_mut().for_each(|v| *v = 0.0);
+            let flux;
+            if tr.upwind {
+                let mut f = w * d * (ui - uj);
+                acc_i[r] += w * d;
+                acc_j[r] -= w * d;
+                for (t, &c) in tr.terms.iter().enumerate() {
+                    let delta = ws.delta[t];
+                    let (up, acc_up) = if delta > 0.0 {
+                        (i, &mut acc_i)
+                    } else {
+                        (j, &mut acc_j)
+                    };
+                    let mob = match &problem.chemotaxis[c].factor {
+                        Some(_) => ws.factor[c][up],
+                        None => u[r * n + up],
+                    };
+                    f += w * mob * delta;
+                    if want_jac {
+                        match &problem.chemotaxis[c].factor {
+                            Some(_) => {
+                                for &s in &tr.deps {
+                                    acc_up[s] += w * delta * ws.factor_jac[c][s * n + up];
+                                }
+                            }
+                            None => acc_up[r] += w * delta,
+                        }
+                        for &s in &tr.deps {
+                            acc_i[s] += w * mob * ws.gi[t * sc + s];
+                            acc_j[s] += w * mob * ws.gj[t * sc + s];
+                        }
+                    }
+                }
+                flux = f;
+            } else if nt == 0 {
+                flux = w * d * (ui - uj);
+                acc_i[r] = w * d;
+                acc_j[r] = -w * d;
+            } else {
+                let total: f64 = ws.delta.iter().sum();
+                let (dbm, dbp);
+                if d > 0.0 {
+                    let x = total / d;
+                    let (bm, dm) = bernoulli(-x);
+                    let (bp, dp) = bernoulli(x);
+                    (dbm, dbp) = (dm, dp);
+                    flux = w * d * (bm * ui - bp * uj);
+                    acc_i[r] += w * d * bm;
+                    acc_j[r] -= w * d * bp;
+                } else {
+                    // The D → 0 limit of exponential fitting is first-order upwinding.
+                    let (pos, neg) = (total.max(0.0), (-total).max(0.0));
+                    flux = w * (pos * ui - neg * uj);
+                    acc_i[r] += w * pos;
+                    acc_j[r] -= w * neg;
+                    dbm = if total > 0.0 { -1.0 } else { 0.0 };
+                    dbp = if total < 0.0 { -1.0 } else { 0.0 };
+                }
+                if want_jac {
+                    // ∂F/∂Δ = w·(−B'(−δ) uᵢ − B'(δ) uⱼ); D cancels against ∂δ/∂Δ = 1/D.
+                    let dfd = w * (-dbm * ui - dbp * uj);
+                    for t in 0..nt {
+                        for &s in &tr.deps {
+                            acc_i[s] += dfd * ws.gi[t * sc + s];
+                            acc_j[s] += dfd * ws.gj[t * sc + s];
+                        }
+                    }
+                }
+            }
+            residual[r * n + i] += flux;
+            residual[r * n + j] -= flux;
+            if want_jac {
+                let Some((layout, vals)) = jac.as_mut() else {
+                    continue;
+                };
+                let [kij, kji] = g.edge_slots[e];
+                for &s in &tr.deps {
+                    if let Some(p) = layout.pos(g, r, s, i, g.diag[i]) {
+                        vals[p] += acc_i[s];
+                    }
+                    if let Some(p) = layout.pos(g, r, s, i, kij) {
+                        vals[p] += acc_j[s];
+                    }
+                    if let Some(p) = layout.pos(g, r, s, j, kji) {
+                        vals[p] -= acc_i[s];
+                    }
+                    if let Some(p) = layout.pos(g, r, s, j, g.diag[j]) {
+                        vals[p] -= acc_j[s];
+                    }
+                }
+            }
+        }
+    }
+}

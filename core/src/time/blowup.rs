@@ -1,0 +1,228 @@
+//! Recognising a suspected blow-up.
+//!
+//! Two signatures stop a run:
+//! - step collapse: the step size falls below a floor while a sup-norm keeps growing (finite-
+//!   time blow-up resolved by the mesh);
+//! - mesh-scale concentration: on a fixed mesh a positive, conservative discrete solution
+//!   cannot exceed (total mass)/(smallest node area), so a collapsing aggregate ends as a
+//!   spike one element wide instead of an infinite peak. Most of a chemotactic species' mass
+//!   gathering within a few element diameters of its peak, with the peak still growing, is
+//!   reported as a suspected blow-up whose verdict depends on the mesh.
+
+use serde::Serialize;
+
+use super::BlowupParams;
+use crate::mesh::Mesh;
+
+/// Which signature stopped the run.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum BlowupKind {
+    /// Step size below the floor while a sup-norm grows.
+    StepCollapse,
+    /// Mass concentrated at the mesh scale around a growing peak.
+    MeshScaleConcentration,
+}
+
+/// What a run reports when it stops at a suspected blow-up.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct BlowupReport {
+    /// Signature.
+    pub kind: BlowupKind,
+    /// Time of the last accepted state.
+    pub time: f64,
+    /// Species whose peak grows.
+    pub species: String,
+    /// Node of the peak.
+    pub node: usize,
+    /// Coordinates of the peak.
+    pub location: [f64; 2],
+    /// Peak value.
+    pub peak: f64,
+    /// Sup-norm at the start of the run.
+    pub initial_peak: f64,
+    /// Integral of the species over the plate.
+    pub mass: f64,
+    /// Integral within `radius` of the peak.
+    pub mass_near_peak: f64,
+    /// Radius used (a few local element diameters).
+    pub radius: f64,
+    /// (total mass)/(smallest node area): the largest value the discrete solution can take.
+    pub discrete_bound: f64,
+    /// Last accepted steps as (time, dt), oldest first.
+    pub dt_history: Vec<(f64, f64)>,
+}
+
+impl BlowupReport {
+    /// A few lines for a person: what was seen, and how to confirm it.
+    pub fn describe(&self) -> String {
+        let what = match self.kind {
+            BlowupKind::StepCollapse => "the step size collapsed while the peak kept growing",
+            BlowupKind::MeshScaleConcentration => {
+                "the mass gathered at the scale of the mesh around a growing peak"
+            }
+        };
+        let mut s = format!(
+            "suspected blow-up of `{}` at t = {:.6e}: {what}\n  peak {:.6e} at ({:.6}, {:.6}) (initially {:.6e}); {:.1}% of the mass {:.6e} lies within {:.3e} of it\n  discrete bound mass/min(node area) = {:.6e} (peak is {:.1}% of it)",
+            self.species,
+            self.time,
+            self.peak,
+            self.location[0],
+            self.location[1],
+            self.initial_peak,
+            100.0 * self.mass_near_peak / self.mass.max(f64::MIN_POSITIVE),
+            self.mass,
+            self.radius,
+            self.discrete_bound,
+            100.0 * self.peak / self.discrete_bound.max(f64::MIN_POSITIVE),
+        );
+        if self.kind == BlowupKind::MeshScaleConcentration {
+            s.push_str(
+                "\n  this verdict depends on the mesh: refine near the peak (a spot there with a smaller size) and rerun; a true blow-up concentrates again at the finer scale and sooner",
+            );
+        }
+        if let Some(&(t, dt)) = self.dt_history.last() {
+            s.push_str(&format!("\n  last step: dt = {dt:.3e} at t = {t:.6e}"));
+        }
+        s
+    }
+}
+
+/// Per-species history the detector looks at.
+#[derive(Clone, Debug)]
+pub(crate) struct Monitor {
+    params: BlowupParams,
+    /// Species watched for concentration (the climbing species of chemotaxis terms).
+    chemotactic: Vec<bool>,
+    initial_sup: Vec<f64>,
+    sups: Vec<Vec<f64>>,
+    dts: Vec<(f64, f64)>,
+    /// Largest incident edge length at each node.
+    local_h: Vec<f64>,
+    min_area: f64,
+}
+
+impl Monitor {
+    pub fn new(params: BlowupParams, mesh: &Mesh, chemotactic: Vec<bool>, sups: Vec<f64>) -> Self {
+        let mut local_h = vec![0.0f64; mesh.num_nodes()];
+        for &[a, b] in &mesh.edges {
+            let (pa, pb) = (mesh.node(a), mesh.node(b));
+            let l = (pa[0] - pb[0]).hypot(pa[1] - pb[1]);
+            local_h[a] = local_h[a].max(l);
+            local_h[b] = local_h[b].max(l);
+        }
+        let min_area = mesh
+            .node_areas
+            .iter()
+            .copied()
+            .fold(f64::INFINITY, f64::min);
+        Self {
+            params,
+            chemotactic,
+            sups: sups.iter().map(|&s| vec![s]).collect(),
+            initial_sup: sups,
+            dts: Vec::new(),
+            local_h,
+            min_area,
+        }
+    }
+
+    /// Records an accepted step.
+    pub fn record(&mut self, t: f64, dt: f64, sups: &[f64]) {
+        let keep = self.params.window + 1;
+        for (h, &s) in self.sups.iter_mut().zip(sups) {
+            h.push(s);
+            if h.len() > keep {
+                h.remove(0);
+            }
+        }
+        self.dts.push((t, dt));
+        if self.dts.len() > keep.max(20) {
+            self.dts.remove(0);
+        }
+    }
+
+    fn growing(&self, s: usize, factor: f64) -> bool {
+        let h = &self.sups[s];
+        let n = h.len();
+        n > self.params.window.min(3)
+            && h[n - 1] > h[n - 2]
+            && h[n - 2] > h[n - 3]
+            && h[n - 1] >= factor * h[0]
+    }
+
+    /// A report if the state `u` (species-major) at time `t` looks like a blow-up; `dt` is the
+    /// step size the stepper is about to try and `floor` the step-size floor.
+    pub fn check(
+        &self,
+        mesh: &Mesh,
+        names: &[String],
+        u: &[f64],
+        t: f64,
+        dt: f64,
+        floor: f64,
+    ) -> Option<BlowupReport> {
+        if !self.params.enabled {
+            return None;
+        }
+        let n = mesh.num_nodes();
+        for s in 0..self.sups.len() {
+            let collapse = dt < floor && self.growing(s, self.params.growth);
+            let concentrated = self.chemotactic[s]
+                && self.growing(s, 1.0)
+                && self.sups[s].last().copied().unwrap_or(0.0)
+                    >= self.params.peak_growth * self.initial_sup[s];
+            if !(collapse || concentrated) {
+                continue;
+            }
+            let report = self.report(mesh, s, &names[s], &u[s * n..(s + 1) * n], t);
+            let share = report.mass_near_peak / report.mass.max(f64::MIN_POSITIVE);
+            if collapse {
+                return Some(BlowupReport {
+                    kind: BlowupKind::StepCollapse,
+                    ..report
+                });
+            }
+            if share >= self.params.concentration {
+                return Some(report);
+            }
+        }
+        None
+    }
+
+    fn report(&self, mesh: &Mesh, s: usize, name: &str, u: &[f64], t: f64) -> BlowupReport {
+        let (node, peak) =
+            u.iter()
+                .copied()
+                .enumerate()
+                .fold(
+                    (0, f64::NEG_INFINITY),
+                    |a, (i, v)| if v > a.1 { (i, v) } else { a },
+                );
+        let p = mesh.node(node);
+        let radius = self.params.radius_elements * self.local_h[node];
+        let mut mass = 0.0;
+        let mut near = 0.0;
+        for (i, (&v, &m)) in u.iter().zip(&mesh.node_areas).enumerate() {
+            mass += m * v;
+            let q = mesh.node(i);
+            if (q[0] - p[0]).hypot(q[1] - p[1]) <= radius {
+                near += m * v;
+            }
+        }
+        BlowupReport {
+            kind: BlowupKind::MeshScaleConcentration,
+            time: t,
+            species: name.to_string(),
+            node,
+            location: p,
+            peak,
+            initial_peak: self.initial_sup[s],
+            mass,
+            mass_near_peak: near,
+            radius,
+            discrete_bound: mass / self.min_area,
+            dt_history: self.dts.clone(),
+        }
+    }
+}

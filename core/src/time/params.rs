@@ -1,0 +1,121 @@
+//! Settings of the time stepper (serde values, so run files and sweeps can carry them).
+
+use serde::{Deserialize, Serialize};
+
+use crate::linalg::LinearParams;
+
+/// The time discretisation.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum Scheme {
+    /// Variable-step BDF2 (second order), started with backward Euler; a step whose BDF2
+    /// solution leaves the positive cone is redone with backward Euler.
+    #[default]
+    Bdf2,
+    /// Backward Euler (first order, positivity-preserving for the fitted transport).
+    BackwardEuler,
+}
+
+/// How the species are coupled within a step.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum Coupling {
+    /// Newton on the fully coupled system of all species.
+    #[default]
+    Newton,
+    /// Linearly implicit: the species are solved one after another (in model order), each
+    /// with one linear solve, the others taken at their latest values. Cheaper per step and
+    /// in memory; less accurate for strong coupling.
+    Lagged,
+}
+
+/// When to stop with a suspected blow-up.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct BlowupParams {
+    /// Watch for blow-up at all.
+    pub enabled: bool,
+    /// Step-size floor, as a fraction of the span of the current `advance_to` call: a run
+    /// whose step falls below it while a sup-norm keeps growing is stopped.
+    pub dt_floor: f64,
+    /// Growth of a sup-norm over the last `window` accepted steps that counts as "keeps
+    /// growing" together with the step-size floor.
+    pub growth: f64,
+    /// Accepted steps looked back over.
+    pub window: usize,
+    /// Mesh-scale concentration: this share of a chemotactic species' mass within
+    /// `radius_elements` local element diameters of its peak…
+    pub concentration: f64,
+    /// …radius of that disk in element diameters…
+    pub radius_elements: f64,
+    /// …while its sup-norm has grown by at least this factor since the start and is still
+    /// growing.
+    pub peak_growth: f64,
+}
+
+impl Default for BlowupParams {
+    fn default() -> Self {
+        Self {
+            enabled: true,
+            dt_floor: 1e-7,
+            growth: 2.0,
+            window: 10,
+            concentration: 0.5,
+            radius_elements: 3.0,
+            peak_growth: 4.0,
+        }
+    }
+}
+
+/// Settings of a [`super::Simulation`].
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(default, deny_unknown_fields)]
+pub struct StepperParams {
+    /// Time discretisation.
+    pub scheme: Scheme,
+    /// Coupling of the species within a step.
+    pub coupling: Coupling,
+    /// Adapt the step size to the local error estimate (false: fixed steps of `dt_initial`).
+    pub adaptive: bool,
+    /// Relative tolerance of the local error.
+    pub rtol: f64,
+    /// Absolute tolerance of the local error, in the species' own units.
+    pub atol: f64,
+    /// First step; `None` picks one from the initial rates of change.
+    pub dt_initial: Option<f64>,
+    /// Smallest step tried before the run gives up (or reports a blow-up).
+    pub dt_min: f64,
+    /// Largest step.
+    pub dt_max: Option<f64>,
+    /// Newton iterations per step attempt.
+    pub max_newton: usize,
+    /// Newton stops when the error-weighted RMS norm of its update is below this.
+    pub newton_tol: f64,
+    /// A step is rejected when a species' minimum is below −tol × its maximum modulus
+    /// (values from round-off below that are accepted). Negative: no positivity check.
+    pub negativity_tol: f64,
+    /// Linear solver settings.
+    pub linear: LinearParams,
+    /// Blow-up detection.
+    pub blowup: BlowupParams,
+}
+
+impl Default for StepperParams {
+    fn default() -> Self {
+        Self {
+            scheme: Scheme::Bdf2,
+            coupling: Coupling::Newton,
+            adaptive: true,
+            rtol: 1e-3,
+            atol: 1e-6,
+            dt_initial: None,
+            dt_min: 1e-14,
+            dt_max: None,
+            max_newton: 10,
+            newton_tol: 1e-3,
+            negativity_tol: 1e-12,
+            linear: LinearParams::default(),
+            blowup: BlowupParams::default(),
+        }
+    }
+}
