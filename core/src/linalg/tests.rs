@@ -125,6 +125,24 @@ fn auto_chooses_by_size_and_symmetry() {
 }
 
 #[test]
+fn the_direct_path_uses_cholesky_for_spd_matrices_and_lu_otherwise() {
+    let mesh = testmats::disk_mesh(0.1);
+    let d = testmats::diffusion(&mesh, 1e-2);
+    let mut neg = d.clone();
+    neg.data_mut().iter_mut().for_each(|v| *v = -*v);
+    let t = testmats::transport(&mesh, 1e-2, 3.0);
+    let mut s = LinearSolver::new(LinearParams::default());
+    for (a, chol) in [(&d, true), (&t, false), (&neg, false), (&d, true)] {
+        s.prepare(a, 1).unwrap();
+        assert_eq!(s.uses_cholesky(), chol);
+        let b = testmats::rhs(a.rows(), 2);
+        let mut x = vec![0.0; a.rows()];
+        s.solve(&b, &mut x).unwrap();
+        assert!(relative_residual(a, &x, &b) < 1e-13);
+    }
+}
+
+#[test]
 fn direct_and_iterative_paths_refill_values_on_the_same_pattern() {
     let mesh = testmats::disk_mesh(0.08);
     for method in [Method::Direct, Method::Iterative] {
