@@ -4,6 +4,7 @@ mod check;
 mod error;
 mod mesh;
 mod plate_args;
+mod run;
 
 use clap::{Parser, Subcommand};
 use error::CliError;
@@ -22,16 +23,23 @@ enum Command {
     Mesh(Box<mesh::MeshArgs>),
     /// Parse and compile a model file and report on its terms.
     Check(check::CheckArgs),
+    /// Integrate a model in time on a plate and write the states as .vtu files.
+    Run(Box<run::RunArgs>),
 }
 
 fn main() {
     let cli = Cli::parse();
-    let result: Result<(), CliError> = match &cli.command {
-        Command::Mesh(args) => mesh::run(args),
-        Command::Check(args) => check::run(args),
+    let result: Result<i32, CliError> = match &cli.command {
+        Command::Mesh(args) => mesh::run(args).map(|()| 0),
+        Command::Check(args) => check::run(args).map(|()| 0),
+        Command::Run(args) => run::run(args),
     };
-    if let Err(err) = result {
-        eprintln!("error: {}", err.message);
-        std::process::exit(err.code);
+    match result {
+        Ok(0) => {}
+        Ok(code) => std::process::exit(code),
+        Err(err) => {
+            eprintln!("error: {}", err.message);
+            std::process::exit(err.code);
+        }
     }
 }

@@ -14,6 +14,7 @@ pub mod geometry;
 pub mod kernel;
 pub mod linalg;
 pub mod mesh;
+pub mod observe;
 pub mod output;
 pub mod problem;
 pub mod time;

@@ -407,3 +407,46 @@ fn kernel(g: &mut Graph, ns: usize, outputs: &[NodeId], jacobian: bool) -> Graph
     }
     GraphKernel::new(g, ns, outputs, &derivs)
 }
+
+impl CompiledModel {
+    /// The solver's view of this model: species, kernels (shared, so the problem is cheap
+    /// to clone for many runs) and diagnostics.
+    pub fn to_problem(&self) -> agarium_core::problem::Problem {
+        use agarium_core::kernel::BatchKernel;
+        use agarium_core::problem::{ChemotaxisSpec, DiagnosticSpec, Problem, SpeciesSpec};
+        let arc = |k: &GraphKernel| -> Arc<dyn BatchKernel> { Arc::new(k.clone()) };
+        Problem {
+            species: self
+                .species
+                .iter()
+                .map(|s| SpeciesSpec {
+                    name: s.name.clone(),
+                    kind: s.kind,
+                })
+                .collect(),
+            reactions: arc(&self.reactions),
+            initial: arc(&self.initial),
+            chemotaxis: self
+                .chemotaxis
+                .iter()
+                .map(|c| ChemotaxisSpec {
+                    cells: c.cells,
+                    signal: c.signal,
+                    form: c.form,
+                    sensitivity: arc(&c.sensitivity),
+                    factor: c.factor.as_ref().map(arc),
+                })
+                .collect(),
+            diagnostics: self
+                .diagnostics
+                .iter()
+                .map(|d| DiagnosticSpec {
+                    name: d.name.clone(),
+                    integral: d.integral,
+                    conserved: d.conserved,
+                    kernel: arc(&d.kernel),
+                })
+                .collect(),
+        }
+    }
+}

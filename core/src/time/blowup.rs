@@ -96,6 +96,8 @@ pub(crate) struct Monitor {
     chemotactic: Vec<bool>,
     initial_sup: Vec<f64>,
     sups: Vec<Vec<f64>>,
+    initial_peak_per_mass: Vec<f64>,
+    peak_per_mass: Vec<Vec<f64>>,
     dts: Vec<(f64, f64)>,
     /// Largest incident edge length at each node.
     local_h: Vec<f64>,
@@ -103,7 +105,8 @@ pub(crate) struct Monitor {
 }
 
 impl Monitor {
-    pub fn new(params: BlowupParams, mesh: &Mesh, chemotactic: Vec<bool>, sups: Vec<f64>) -> Self {
+    pub fn new(params: BlowupParams, mesh: &Mesh, chemotactic: Vec<bool>, u: &[f64]) -> Self {
+        let (sups, ratios) = peaks(mesh, u, chemotactic.len());
         let mut local_h = vec![0.0f64; mesh.num_nodes()];
         for &[a, b] in &mesh.edges {
             let (pa, pb) = (mesh.node(a), mesh.node(b));
@@ -121,6 +124,8 @@ impl Monitor {
             chemotactic,
             sups: sups.iter().map(|&s| vec![s]).collect(),
             initial_sup: sups,
+            peak_per_mass: ratios.iter().map(|&s| vec![s]).collect(),
+            initial_peak_per_mass: ratios,
             dts: Vec::new(),
             local_h,
             min_area,
@@ -128,9 +133,16 @@ impl Monitor {
     }
 
     /// Records an accepted step.
-    pub fn record(&mut self, t: f64, dt: f64, sups: &[f64]) {
+    pub fn record(&mut self, mesh: &Mesh, t: f64, dt: f64, u: &[f64]) {
         let keep = self.params.window + 1;
-        for (h, &s) in self.sups.iter_mut().zip(sups) {
+        let (sups, ratios) = peaks(mesh, u, self.sups.len());
+        for (h, s) in self.sups.iter_mut().zip(sups) {
+            h.push(s);
+            if h.len() > keep {
+                h.remove(0);
+            }
+        }
+        for (h, s) in self.peak_per_mass.iter_mut().zip(ratios) {
             h.push(s);
             if h.len() > keep {
                 h.remove(0);
@@ -142,8 +154,8 @@ impl Monitor {
         }
     }
 
-    fn growing(&self, s: usize, factor: f64) -> bool {
-        let h = &self.sups[s];
+    /// The last three values of `h` increase and the newest is `factor` times the oldest kept.
+    fn growing(&self, h: &[f64], factor: f64) -> bool {
         let n = h.len();
         n > self.params.window.min(3)
             && h[n - 1] > h[n - 2]
@@ -167,22 +179,27 @@ impl Monitor {
         }
         let n = mesh.num_nodes();
         for s in 0..self.sups.len() {
-            let collapse = dt < floor && self.growing(s, self.params.growth);
-            let concentrated = self.chemotactic[s]
-                && self.growing(s, 1.0)
-                && self.sups[s].last().copied().unwrap_or(0.0)
-                    >= self.params.peak_growth * self.initial_sup[s];
-            if !(collapse || concentrated) {
+            let u = &u[s * n..(s + 1) * n];
+            let collapse = dt < floor && self.growing(&self.sups[s], self.params.growth);
+            // Concentration is growth of the peak relative to the mass (growth of the whole
+            // population raises both and is no concentration).
+            let concentrating = self.chemotactic[s] && {
+                let h = &self.peak_per_mass[s];
+                self.growing(h, 1.0)
+                    && h.last().copied().unwrap_or(0.0)
+                        >= self.params.peak_growth * self.initial_peak_per_mass[s]
+            };
+            if !(collapse || concentrating) {
                 continue;
             }
-            let report = self.report(mesh, s, &names[s], &u[s * n..(s + 1) * n], t);
-            let share = report.mass_near_peak / report.mass.max(f64::MIN_POSITIVE);
+            let report = self.report(mesh, s, &names[s], u, t);
             if collapse {
                 return Some(BlowupReport {
                     kind: BlowupKind::StepCollapse,
                     ..report
                 });
             }
+            let share = report.mass_near_peak / report.mass.max(f64::MIN_POSITIVE);
             if share >= self.params.concentration {
                 return Some(report);
             }
@@ -225,4 +242,17 @@ impl Monitor {
             dt_history: self.dts.clone(),
         }
     }
+}
+
+/// Sup-norm of each species and its ratio to the species' integral (0 for a zero integral).
+fn peaks(mesh: &Mesh, u: &[f64], species: usize) -> (Vec<f64>, Vec<f64>) {
+    let n = mesh.num_nodes();
+    (0..species)
+        .map(|s| {
+            let v = &u[s * n..(s + 1) * n];
+            let sup = v.iter().fold(0.0f64, |a, x| a.max(x.abs()));
+            let mass: f64 = v.iter().zip(&mesh.node_areas).map(|(x, m)| x * m).sum();
+            (sup, if mass > 0.0 { sup / mass } else { 0.0 })
+        })
+        .unzip()
 }

@@ -114,6 +114,8 @@ pub struct Stats {
     pub newton_iterations: usize,
     /// Linear solves.
     pub linear_solves: usize,
+    /// Jacobians assembled and factored (or preconditioned).
+    pub jacobians: usize,
     /// Krylov iterations summed over linear solves.
     pub linear_iterations: usize,
 }
@@ -252,8 +254,7 @@ impl Simulation {
         let chemotactic = (0..sc)
             .map(|s| problem.chemotaxis.iter().any(|c| c.cells == s))
             .collect();
-        let sups = sup_norms(&u0, sc, n);
-        let monitor = Monitor::new(params.blowup.clone(), &mesh, chemotactic, sups);
+        let monitor = Monitor::new(params.blowup.clone(), &mesh, chemotactic, &u0);
         let mut sim = Simulation {
             problem,
             mesh,
@@ -285,14 +286,13 @@ impl Simulation {
                     time: t0,
                     reason: f.describe(&sim.names),
                 })?;
-            let sups = sup_norms(&u0, sc, n);
             sim.monitor = Monitor::new(
                 sim.params.blowup.clone(),
                 &sim.mesh,
                 (0..sc)
                     .map(|s| sim.problem.chemotaxis.iter().any(|c| c.cells == s))
                     .collect(),
-                sups,
+                &u0,
             );
         }
         sim.history.push((t0, u0));
@@ -412,8 +412,8 @@ impl Simulation {
                             self.dt_next = self.dt_next.max(dt);
                         }
                     }
-                    let sups = sup_norms(self.state_slice(), self.names.len(), self.n);
-                    self.monitor.record(t_new, dt, &sups);
+                    let u = &self.history[self.history.len() - 1].1;
+                    self.monitor.record(&self.mesh, t_new, dt, u);
                     let report = StepReport {
                         time: t_new,
                         dt,
@@ -668,18 +668,22 @@ impl Simulation {
         let mut rhs = vec![0.0; dim];
         let mut delta = vec![0.0; dim];
         let mut previous: Option<f64> = None;
+        // Simplified Newton: the Jacobian and its factorization are kept while the iteration
+        // contracts fast, and refreshed when it does not. Any Jacobian with the step's time
+        // coefficient keeps conservation exact (its flux columns sum to zero).
+        let mut fresh = true;
+        let mut fresh_last;
         for it in 1..=max {
             self.disc
-                .evaluate(&self.problem, u, t, true, &mut self.ws)
+                .evaluate(&self.problem, u, t, fresh, &mut self.ws)
                 .map_err(|e| Failure::Newton(e.to_string()))?;
-            self.disc.assemble(
-                &self.problem,
-                u,
-                time,
-                &mut self.ws,
-                &mut g,
-                Some((&sys.layout, sys.matrix.data_mut())),
-            );
+            let jac = if fresh {
+                Some((&sys.layout, sys.matrix.data_mut()))
+            } else {
+                None
+            };
+            self.disc
+                .assemble(&self.problem, u, time, &mut self.ws, &mut g, jac);
             for (slot, &s) in sys.species.iter().enumerate() {
                 for i in 0..n {
                     rhs[slot * n + i] = -g[s * n + i];
@@ -688,9 +692,13 @@ impl Simulation {
             if rhs.iter().any(|v| !v.is_finite()) {
                 return Err(Failure::NonFinite);
             }
-            sys.solver
-                .prepare(&sys.matrix, sys.species.len())
-                .map_err(Failure::Linear)?;
+            if fresh {
+                sys.solver
+                    .prepare(&sys.matrix, sys.species.len())
+                    .map_err(Failure::Linear)?;
+                self.stats.jacobians += 1;
+            }
+            fresh_last = fresh;
             delta.iter_mut().for_each(|d| *d = 0.0);
             let info = sys
                 .solver
@@ -716,13 +724,16 @@ impl Simulation {
             if norm <= tol || it == max && tol.is_infinite() {
                 return Ok(it);
             }
+            fresh = false;
             if let Some(prev) = previous {
-                // A contraction this poor will not converge in the iterations left.
-                if norm > 0.9 * prev && it >= 3 {
+                let theta = norm / prev;
+                if theta > 0.9 && fresh_last && it >= 3 {
+                    // A contraction this poor will not converge in the iterations left.
                     return Err(Failure::Newton(format!(
                         "no contraction (update norm {norm:.3e} after {prev:.3e})"
                     )));
                 }
+                fresh = theta > 0.25;
             }
             previous = Some(norm);
         }
@@ -730,16 +741,6 @@ impl Simulation {
             "not converged in {max} iterations"
         )))
     }
-}
-
-fn sup_norms(u: &[f64], sc: usize, n: usize) -> Vec<f64> {
-    (0..sc)
-        .map(|s| {
-            u[s * n..(s + 1) * n]
-                .iter()
-                .fold(0.0f64, |a, v| a.max(v.abs()))
-        })
-        .collect()
 }
 
 fn check_params(p: &StepperParams) -> Result<(), SolveError> {
@@ -750,7 +751,7 @@ fn check_params(p: &StepperParams) -> Result<(), SolveError> {
     if !(p.atol > 0.0 && p.atol.is_finite()) {
         return bad("atol must be positive");
     }
-    if !(p.dt_min > 0.0) {
+    if !(p.dt_min > 0.0 && p.dt_min.is_finite()) {
         return bad("dt_min must be positive");
     }
     if let Some(d) = p.dt_initial {
@@ -762,7 +763,7 @@ fn check_params(p: &StepperParams) -> Result<(), SolveError> {
         return bad("fixed steps need dt_initial");
     }
     if let Some(d) = p.dt_max {
-        if !(d > 0.0) {
+        if !(d > 0.0 && d.is_finite()) {
             return bad("dt_max must be positive");
         }
     }

@@ -1,0 +1,318 @@
+//! `agarium run`: mesh a plate, compile a model, integrate it in time, write one .vtu per
+//! output time and print a summary on stderr.
+
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+use std::time::Instant;
+
+use agarium_core::linalg::{LinearParams, Method};
+use agarium_core::mesh::{build_mesh, MeshError};
+use agarium_core::observe::Diagnostics;
+use agarium_core::output::{write_vtu, Field};
+use agarium_core::time::{Control, Coupling, Outcome, Scheme, Simulation, StepperParams};
+use agarium_scripting::{Model, Overrides};
+
+use crate::error::CliError;
+use crate::plate_args::{MeshingArgs, PlateArgs};
+
+/// Exit code of a run stopped at a suspected blow-up (not an error: a finding).
+pub const EXIT_BLOWUP: i32 = 3;
+
+/// Arguments of `agarium run`.
+#[derive(clap::Args, Debug)]
+pub struct RunArgs {
+    /// The model file.
+    pub model: PathBuf,
+    #[command(flatten)]
+    pub plate: PlateArgs,
+    #[command(flatten)]
+    pub meshing: MeshingArgs,
+    /// Override a parameter (repeatable), e.g. `--set chi_0=2.5`.
+    #[arg(long = "set", value_name = "NAME=VALUE")]
+    pub set: Vec<String>,
+    /// End time.
+    #[arg(long, value_name = "T", allow_hyphen_values = true)]
+    pub end: f64,
+    /// Interval between written states [default: a tenth of --end].
+    #[arg(long, value_name = "DT", allow_hyphen_values = true)]
+    pub every: Option<f64>,
+    /// Output folder [default: out/MODEL-NAME].
+    #[arg(short, long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+    /// Time discretisation.
+    #[arg(long, value_enum, default_value_t = SchemeArg::Bdf2)]
+    pub scheme: SchemeArg,
+    /// Species coupling within a step: full Newton, or one linear solve per species with
+    /// the others lagged (cheaper on large meshes).
+    #[arg(long, value_enum, default_value_t = CouplingArg::Newton)]
+    pub coupling: CouplingArg,
+    /// Linear solver.
+    #[arg(long, value_enum, default_value_t = LinearArg::Auto)]
+    pub linear: LinearArg,
+    /// Relative tolerance of the local time error.
+    #[arg(
+        long,
+        value_name = "TOL",
+        default_value_t = 1e-3,
+        allow_hyphen_values = true
+    )]
+    pub rtol: f64,
+    /// Absolute tolerance of the local time error (species units).
+    #[arg(
+        long,
+        value_name = "TOL",
+        default_value_t = 1e-6,
+        allow_hyphen_values = true
+    )]
+    pub atol: f64,
+    /// First step (with --fixed-step: every step).
+    #[arg(long, value_name = "DT", allow_hyphen_values = true)]
+    pub dt: Option<f64>,
+    /// Largest step.
+    #[arg(long, value_name = "DT", allow_hyphen_values = true)]
+    pub dt_max: Option<f64>,
+    /// Fixed steps of --dt instead of error control.
+    #[arg(long, requires = "dt")]
+    pub fixed_step: bool,
+    /// Print nothing but errors.
+    #[arg(short, long)]
+    pub quiet: bool,
+}
+
+/// `--scheme` values.
+#[derive(clap::ValueEnum, Clone, Copy, Debug)]
+pub enum SchemeArg {
+    /// Variable-step BDF2 (second order).
+    Bdf2,
+    /// Backward Euler (first order).
+    Euler,
+}
+
+/// `--coupling` values.
+#[derive(clap::ValueEnum, Clone, Copy, Debug)]
+pub enum CouplingArg {
+    /// Newton on all species together.
+    Newton,
+    /// Species one after another, others lagged.
+    Lagged,
+}
+
+/// `--linear` values.
+#[derive(clap::ValueEnum, Clone, Copy, Debug)]
+pub enum LinearArg {
+    /// Direct up to 200,000 unknowns, iterative above.
+    Auto,
+    /// Sparse LU.
+    Direct,
+    /// Preconditioned Krylov iteration.
+    Iterative,
+}
+
+fn positive(flag: &str, v: f64) -> Result<f64, CliError> {
+    if v.is_finite() && v > 0.0 {
+        Ok(v)
+    } else {
+        Err(CliError::input(format!(
+            "{flag} must be a positive number, got {v}"
+        )))
+    }
+}
+
+impl RunArgs {
+    /// Stepper settings from the options.
+    pub fn stepper(&self) -> Result<StepperParams, CliError> {
+        let mut p = StepperParams {
+            scheme: match self.scheme {
+                SchemeArg::Bdf2 => Scheme::Bdf2,
+                SchemeArg::Euler => Scheme::BackwardEuler,
+            },
+            coupling: match self.coupling {
+                CouplingArg::Newton => Coupling::Newton,
+                CouplingArg::Lagged => Coupling::Lagged,
+            },
+            rtol: positive("--rtol", self.rtol)?,
+            atol: positive("--atol", self.atol)?,
+            adaptive: !self.fixed_step,
+            ..StepperParams::default()
+        };
+        p.linear = LinearParams {
+            method: match self.linear {
+                LinearArg::Auto => Method::Auto,
+                LinearArg::Direct => Method::Direct,
+                LinearArg::Iterative => Method::Iterative,
+            },
+            ..LinearParams::default()
+        };
+        if let Some(dt) = self.dt {
+            p.dt_initial = Some(positive("--dt", dt)?);
+        }
+        if let Some(dt) = self.dt_max {
+            p.dt_max = Some(positive("--dt-max", dt)?);
+        }
+        Ok(p)
+    }
+}
+
+/// Output times t₀ + k·every up to `end`, the last one exactly `end`.
+fn output_times(end: f64, every: f64) -> Vec<f64> {
+    let count = (end / every - 1e-9).ceil().max(1.0) as usize;
+    (1..=count)
+        .map(|k| if k == count { end } else { k as f64 * every })
+        .collect()
+}
+
+/// Runs `agarium run`; returns the exit code for a completed run (0, or 3 at blow-up).
+pub fn run(args: &RunArgs) -> Result<i32, CliError> {
+    let started = Instant::now();
+    let end = positive("--end", args.end)?;
+    let every = positive("--every", args.every.unwrap_or(end / 10.0))?;
+    let times = output_times(end, every);
+    if times.len() > 100_000 {
+        return Err(CliError::input(format!(
+            "--every {every} gives {} output files; choose a longer interval",
+            times.len()
+        )));
+    }
+    let params = args.stepper()?;
+    let overrides = Overrides::parse(&args.set).map_err(CliError::input)?;
+    if !args.model.is_file() {
+        return Err(CliError::input(format!(
+            "{}: no such model file",
+            args.model.display()
+        )));
+    }
+    let model = Model::load_file(&args.model, &overrides).map_err(CliError::input)?;
+    let compiled = model.compile().map_err(CliError::input)?;
+    let problem = compiled.to_problem();
+
+    let spec = args.plate.spec()?;
+    spec.check_numbers().map_err(CliError::input)?;
+    let options = args.meshing.options(&spec)?;
+    let built = build_mesh(&spec, &options).map_err(|e| match e {
+        MeshError::Data(_) | MeshError::Triangulation(_) => CliError::failure(e),
+        other => CliError::input(other),
+    })?;
+    let mesh = Arc::new(built.mesh);
+    let stem = args
+        .model
+        .file_stem()
+        .and_then(|s| s.to_str())
+        .unwrap_or("run")
+        .to_string();
+    let dir = args
+        .out
+        .clone()
+        .unwrap_or_else(|| PathBuf::from("out").join(&stem));
+
+    let mut sim = Simulation::new(problem.clone(), mesh.clone(), params, 0.0)
+        .map_err(|e| CliError::input(format!("{}: {e}", args.model.display())))?;
+    std::fs::create_dir_all(&dir)
+        .map_err(|e| CliError::failure(format!("{}: cannot create folder: {e}", dir.display())))?;
+    let quiet = args.quiet;
+    if !quiet {
+        eprintln!(
+            "{}: {} species on {} nodes, {} triangles; to t = {end} writing every {every} into {}",
+            args.model.display(),
+            problem.n_species(),
+            mesh.num_nodes(),
+            mesh.triangles.len(),
+            dir.display()
+        );
+    }
+    let start = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), 0.0)
+        .map_err(CliError::failure)?;
+    write_state(&dir, &stem, 0, &sim, &start)?;
+    let mut outcome = Outcome::Reached;
+    for (k, &t) in times.iter().enumerate() {
+        outcome = sim
+            .advance_to(t, &mut |_| Control::Continue)
+            .map_err(|e| CliError::failure(format!("{}: {e}", args.model.display())))?;
+        let d = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), sim.time())
+            .map_err(CliError::failure)?;
+        write_state(&dir, &stem, k + 1, &sim, &d)?;
+        if !quiet {
+            let s = sim.stats();
+            eprintln!(
+                "  t = {:<12.6e} steps {:>6}  rejected {:>4}  dt {:.3e}",
+                sim.time(),
+                s.steps,
+                s.rejected,
+                sim.next_dt()
+            );
+        }
+        if outcome != Outcome::Reached {
+            break;
+        }
+    }
+    let last = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), sim.time())
+        .map_err(CliError::failure)?;
+    if !quiet {
+        summary(&sim, &start, &last, started.elapsed().as_secs_f64());
+    }
+    match outcome {
+        Outcome::BlowUp(report) => {
+            eprintln!("{}", report.describe());
+            Ok(EXIT_BLOWUP)
+        }
+        _ => Ok(0),
+    }
+}
+
+fn write_state(
+    dir: &Path,
+    stem: &str,
+    k: usize,
+    sim: &Simulation,
+    d: &Diagnostics,
+) -> Result<(), CliError> {
+    let state = sim.state();
+    let names = sim.species_names();
+    let mut fields: Vec<Field> = names
+        .iter()
+        .enumerate()
+        .map(|(s, name)| Field {
+            name,
+            values: state.row(s).to_slice().unwrap_or(&[]),
+        })
+        .collect();
+    for (name, values) in &d.fields {
+        fields.push(Field { name, values });
+    }
+    let path = dir.join(format!("{stem}_{k:04}.vtu"));
+    write_vtu(&path, sim.mesh(), &fields, &[]).map_err(CliError::failure)
+}
+
+fn summary(sim: &Simulation, start: &Diagnostics, last: &Diagnostics, seconds: f64) {
+    let s = sim.stats();
+    eprintln!(
+        "reached t = {:.6e} in {} steps ({} rejected), {} Newton iterations, {} Jacobians, {} linear solves, {:.2} s",
+        sim.time(),
+        s.steps,
+        s.rejected,
+        s.newton_iterations,
+        s.jacobians,
+        s.linear_solves,
+        seconds
+    );
+    eprintln!(
+        "  {:<20} {:>14} {:>14} {:>14}",
+        "species", "integral", "min", "max"
+    );
+    for (name, st) in sim.species_names().iter().zip(&last.species) {
+        eprintln!(
+            "  {:<20} {:>14.6e} {:>14.6e} {:>14.6e}",
+            name, st.integral, st.min, st.max
+        );
+    }
+    for (now, then) in last.integrals.iter().zip(&start.integrals) {
+        let drift = if now.conserved {
+            format!(
+                "  (conserved: relative drift {:.2e})",
+                (now.value - then.value).abs() / then.value.abs().max(f64::MIN_POSITIVE)
+            )
+        } else {
+            String::new()
+        };
+        eprintln!("  ∫ {:<18} {:>14.6e}{drift}", now.name, now.value);
+    }
+}
