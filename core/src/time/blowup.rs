@@ -155,12 +155,22 @@ impl Monitor {
     }
 
     /// The last three values of `h` increase and the newest is `factor` times the oldest kept.
+    /// Needs a full window of history and a positive start: growth out of zero (a species
+    /// that starts absent) is not a blow-up.
     fn growing(&self, h: &[f64], factor: f64) -> bool {
         let n = h.len();
-        n > self.params.window.min(3)
+        n >= (self.params.window + 1).max(3)
+            && h[0] > 0.0
             && h[n - 1] > h[n - 2]
             && h[n - 2] > h[n - 3]
             && h[n - 1] >= factor * h[0]
+    }
+
+    /// The step size has been falling: each of the last three accepted steps no longer than
+    /// the one before.
+    fn shrinking(&self) -> bool {
+        let n = self.dts.len();
+        n >= 3 && self.dts[n - 1].1 <= self.dts[n - 2].1 && self.dts[n - 2].1 <= self.dts[n - 3].1
     }
 
     /// A report if the state `u` (species-major) at time `t` looks like a blow-up; `dt` is the
@@ -180,7 +190,8 @@ impl Monitor {
         let n = mesh.num_nodes();
         for s in 0..self.sups.len() {
             let u = &u[s * n..(s + 1) * n];
-            let collapse = dt < floor && self.growing(&self.sups[s], self.params.growth);
+            let collapse =
+                dt < floor && self.shrinking() && self.growing(&self.sups[s], self.params.growth);
             // Concentration is growth of the peak relative to the mass (growth of the whole
             // population raises both and is no concentration).
             let concentrating = self.chemotactic[s] && {
