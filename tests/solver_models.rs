@@ -226,3 +226,49 @@ fn four_species_on_a_disk_conserves_the_integral_and_cells_die_out() {
     );
     assert!(s.iter().all(|x| x.min >= -1e-12 * x.max.abs()));
 }
+
+/// Volume filling (mobility u(1 − u/u_max)₊ with logistic growth capped at u_max): the cell
+/// density stays within [0, u_max] (the point of the model: density-limited chemotaxis,
+/// common practice), and without growth the upwinded fluxes conserve the cells.
+#[test]
+fn volume_filling_keeps_cells_between_zero_and_the_packing_density() {
+    let mesh = disk(3.0, 0.15);
+    let n = mesh.num_nodes();
+    for r in ["0.3", "0.0"] {
+        let set = format!("r={r}");
+        let problem = load("volume_filling.rhai", &["chi_0=8.0", "u_max=1.0", &set]);
+        let mut sim =
+            Simulation::new(problem.clone(), mesh.clone(), StepperParams::default(), 0.0).unwrap();
+        let m0: f64 = sim.state_slice()[..n]
+            .iter()
+            .zip(&mesh.node_areas)
+            .map(|(a, b)| a * b)
+            .sum();
+        let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+        let out = sim
+            .advance_to(20.0, &mut |rep| {
+                for v in &rep.state.as_slice().unwrap()[..n] {
+                    lo = lo.min(*v);
+                    hi = hi.max(*v);
+                }
+                Control::Continue
+            })
+            .unwrap();
+        assert_eq!(out, Outcome::Reached);
+        assert!(lo >= -1e-12, "r = {r}: min u = {lo:.3e}");
+        // The cap is reached only in the limit; Newton's tolerance allows a hair above it.
+        assert!(hi <= 1.0 + 1e-6, "r = {r}: max u = {hi}");
+        assert!(
+            hi > 0.5,
+            "r = {r}: the cells should aggregate (max u = {hi})"
+        );
+        if r == "0.0" {
+            let m: f64 = sim.state_slice()[..n]
+                .iter()
+                .zip(&mesh.node_areas)
+                .map(|(a, b)| a * b)
+                .sum();
+            assert!((m - m0).abs() <= 1e-12 * m0, "mass {m} vs {m0}");
+        }
+    }
+}

@@ -14,8 +14,9 @@
 //! F = w·D·[B(−Δ/D) uᵢ − B(Δ/D) uⱼ], Δ = Σ_k (χ_k(Uⱼ) − χ_k(Uᵢ)), B(x) = x/(eˣ − 1), which is
 //! exact for the no-flux state u ∝ exp(Φ/D), antisymmetric (so Σᵢ of the flux terms is zero:
 //! mass is conserved exactly) and gives an M-matrix on Delaunay meshes (w ≥ 0). With a mobility
-//! factor f (volume filling) the flux is F = w·[D(uᵢ − uⱼ) + Σ_k f_k(U_up) Δ_k], the mobility
-//! taken at the upstream node of each term. A sensitivity given as χ'(c) enters through the
+//! factor f = u·q(u) (volume filling) the flux is F = w·[D(uᵢ − uⱼ) + Σ_k u_up q_k(U_down) Δ_k]:
+//! the cells at the upstream node of each term, the crowding at the downstream node, so that
+//! both u ≥ 0 and the packing bound q = 0 are kept. A sensitivity given as χ'(c) enters through the
 //! trapezoidal potential difference Δ = ½(χ'ᵢ + χ'ⱼ)(cⱼ − cᵢ).
 
 use crate::kernel::{BatchKernel, KernelError, KernelInput, Scratch, SensitivityForm, SpeciesKind};
@@ -24,6 +25,9 @@ use crate::problem::Problem;
 
 use super::bernoulli::bernoulli;
 use super::pattern::{BlockKind, BlockLayout, NodeGraph};
+
+/// Cells below this value are clamped when the mobility's q = f/u is evaluated.
+const MOBILITY_FLOOR: f64 = 1e-30;
 
 /// The transport of one species: diffusion plus the chemotaxis terms that move it.
 #[derive(Clone, Debug)]
@@ -187,6 +191,7 @@ impl Discretisation {
         ws.factor.resize_with(k, Vec::new);
         ws.factor_jac.resize_with(k, Vec::new);
         let run = |kernel: &dyn BatchKernel,
+                   input: &KernelInput<'_>,
                    out: &mut Vec<f64>,
                    d: &mut Vec<f64>,
                    scratch: &mut Scratch|
@@ -194,13 +199,14 @@ impl Discretisation {
             out.resize(kernel.n_outputs() * n, 0.0);
             if jac {
                 d.resize(kernel.n_outputs() * sc * n, 0.0);
-                kernel.eval_with_jacobian(&input, out, d, scratch)
+                kernel.eval_with_jacobian(input, out, d, scratch)
             } else {
-                kernel.eval(&input, out, scratch)
+                kernel.eval(input, out, scratch)
             }
         };
         run(
             &*problem.reactions,
+            &input,
             &mut ws.reaction,
             &mut ws.reaction_jac,
             &mut ws.scratch,
@@ -208,17 +214,55 @@ impl Discretisation {
         for (c, term) in problem.chemotaxis.iter().enumerate() {
             run(
                 &*term.sensitivity,
+                &input,
                 &mut ws.chi[c],
                 &mut ws.chi_jac[c],
                 &mut ws.scratch,
             )?;
             if let Some(f) = &term.factor {
+                // The mobility f is used as u·q(u) with q = f/u, so that an edge's flux can
+                // take u at the upstream node and q at the downstream one: the flux into a
+                // node then vanishes where q does (a packed node accepts no more cells) as
+                // the flux out of it vanishes where u does. q is evaluated at u clamped to
+                // a tiny positive value, which gives q(0) in the limit.
+                let cells = term.cells;
+                let clamped: Vec<f64> = u[cells * n..(cells + 1) * n]
+                    .iter()
+                    .map(|v| v.max(MOBILITY_FLOOR))
+                    .collect();
+                let mut moved = slices.clone();
+                moved[cells] = &clamped;
+                let input = KernelInput {
+                    species: &moved,
+                    ..input
+                };
                 run(
                     &**f,
+                    &input,
                     &mut ws.factor[c],
                     &mut ws.factor_jac[c],
                     &mut ws.scratch,
                 )?;
+                let scale = clamped.iter().fold(1.0f64, |a, v| a.max(*v));
+                for (i, &uc) in clamped.iter().enumerate() {
+                    let q = ws.factor[c][i] / uc;
+                    ws.factor[c][i] = q;
+                    if jac {
+                        for s in 0..sc {
+                            let d = &mut ws.factor_jac[c][s * n + i];
+                            // ∂q/∂s = (∂f/∂s − [s = cells]·q)/u; below 1e-10 of the
+                            // scale the difference is round-off, and the cells' own term
+                            // is dropped (Newton's Jacobian only, not the residual).
+                            *d = if s != cells {
+                                *d / uc
+                            } else if uc > 1e-10 * scale {
+                                (*d - q) / uc
+                            } else {
+                                0.0
+                            };
+                        }
+                    }
+                }
             }
         }
         Ok(())
@@ -364,16 +408,21 @@ impl Discretisation {
                     } else {
                         (j, &mut acc_j)
                     };
+                    let down = i + j - up;
+                    let u_up = u[r * n + up];
                     let mob = match &problem.chemotaxis[c].factor {
-                        Some(_) => ws.factor[c][up],
-                        None => u[r * n + up],
+                        Some(_) => u_up * ws.factor[c][down],
+                        None => u_up,
                     };
                     f += w * mob * delta;
                     if want_jac {
                         match &problem.chemotaxis[c].factor {
                             Some(_) => {
+                                acc_up[r] += w * delta * ws.factor[c][down];
+                                let acc_down = if down == i { &mut acc_i } else { &mut acc_j };
                                 for &s in &tr.deps {
-                                    acc_up[s] += w * delta * ws.factor_jac[c][s * n + up];
+                                    acc_down[s] +=
+                                        w * delta * u_up * ws.factor_jac[c][s * n + down];
                                 }
                             }
                             None => acc_up[r] += w * delta,

@@ -91,7 +91,7 @@ impl Default for LinearParams {
     fn default() -> Self {
         Self {
             method: Method::Auto,
-            direct_limit: 200_000,
+            direct_limit: 50_000,
             rtol: 1e-10,
             max_iterations: 500,
             krylov: Krylov::Auto,
