@@ -1,0 +1,133 @@
+//! End-to-end tests of `agarium run` through the built binary.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn agarium(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_agarium"))
+        .args(args)
+        .output()
+        .expect("run agarium")
+}
+
+fn model_path(name: &str) -> String {
+    let p: PathBuf = [env!("CARGO_MANIFEST_DIR"), "models", name].iter().collect();
+    p.display().to_string()
+}
+
+fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+fn files(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .map(|r| {
+            r.filter_map(|e| e.ok())
+                .map(|e| e.file_name().to_string_lossy().into_owned())
+                .collect()
+        })
+        .unwrap_or_default();
+    v.sort();
+    v
+}
+
+#[test]
+fn a_run_writes_one_file_per_output_time_and_a_summary() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("colony");
+    let o = agarium(&[
+        "run",
+        &model_path("colony_4species.rhai"),
+        "--plate",
+        "circle:5",
+        "--size",
+        "0.4",
+        "--spot",
+        "0,0,0.1",
+        "--end",
+        "1",
+        "--every",
+        "0.25",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    let err = stderr(&o);
+    assert!(o.status.success(), "{err}");
+    let names = files(&out);
+    let expected: Vec<String> = (0..=4).map(|k| format!("colony_4species_{k:04}.vtu")).collect();
+    assert_eq!(names, expected);
+    assert!(err.contains("reached t = 1.000000e0"), "{err}");
+    // The conserved combination is reported with its drift, at round-off level.
+    let line = err
+        .lines()
+        .find(|l| l.contains("biomass_and_food"))
+        .expect("conserved integral in the summary");
+    let drift: f64 = line
+        .rsplit("drift ")
+        .next()
+        .and_then(|s| s.trim_end_matches(')').parse().ok())
+        .expect("a drift figure");
+    assert!(drift < 1e-12, "{line}");
+    // Every species and the declared field are in the files.
+    let text = std::fs::read_to_string(out.join("colony_4species_0004.vtu")).unwrap();
+    for name in ["\"u\"", "\"c\"", "\"n\"", "\"w\"", "\"all_cells\""] {
+        assert!(text.contains(name), "{name} missing");
+    }
+}
+
+const CRITICAL: &str = r#"
+// Parabolic–elliptic Keller–Segel with mass 10π (a Gaussian of width 0.1) at the centre.
+species("u", #{ kind: "mobile", diffusion: 1.0, initial: "1000.0 * exp(-(x * x + y * y) / 0.01)" });
+species("c", #{ kind: "quasi-steady", diffusion: 1.0, reaction: "u - c" });
+chemotaxis(#{ cells: "u", signal: "c", potential: "c" });
+"#;
+
+/// Mass 10π > 8π concentrated at an interior point blows up (Jäger & Luckhaus 1992; Nagai
+/// 1995): the run stops with a report and exit status 3, distinct from success and errors.
+#[test]
+fn a_suspected_blow_up_stops_the_run_with_its_own_exit_status() {
+    let dir = tempfile::tempdir().unwrap();
+    let model = dir.path().join("critical.rhai");
+    std::fs::write(&model, CRITICAL).unwrap();
+    let out = dir.path().join("out");
+    let o = agarium(&[
+        "run",
+        model.to_str().unwrap(),
+        "--plate",
+        "circle:1",
+        "--size",
+        "0.06",
+        "--end",
+        "0.5",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(3), "{err}");
+    assert!(err.contains("suspected blow-up of `u`"), "{err}");
+    assert!(err.contains("refine near the peak"), "{err}");
+    // The state at the stop was written (first file plus the one at the stop).
+    assert!(files(&out).len() >= 2, "{:?}", files(&out));
+}
+
+#[test]
+fn bad_options_exit_2_and_write_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("never");
+    let o_str = out.to_str().unwrap();
+    let model = model_path("colony_4species.rhai");
+    let cases: Vec<Vec<&str>> = vec![
+        vec!["run", &model, "--plate", "circle:5", "--end", "-1", "-o", o_str],
+        vec!["run", &model, "--plate", "circle:5", "--end", "1", "--every", "0", "-o", o_str],
+        vec!["run", &model, "--plate", "circle:5", "--end", "1", "--rtol", "nan", "-o", o_str],
+        vec!["run", &model, "--plate", "circle:5", "--end", "1", "--set", "nope=1", "-o", o_str],
+        vec!["run", "missing.rhai", "--plate", "circle:5", "--end", "1", "-o", o_str],
+        vec!["run", &model, "--plate", "circle:-5", "--end", "1", "-o", o_str],
+    ];
+    for args in cases {
+        let o = agarium(&args);
+        assert_eq!(o.status.code(), Some(2), "{args:?}: {}", stderr(&o));
+        assert!(stderr(&o).starts_with("error: "), "{args:?}: {}", stderr(&o));
+        assert!(!out.exists(), "{args:?} created the output folder");
+    }
+}
