@@ -32,19 +32,18 @@ fn readme_main_command_runs() {
     let text = readme();
     let line = text
         .lines()
-        .find(|l| l.starts_with("cargo run --release -- mesh"))
+        .find(|l| l.starts_with("cargo run --release -- run"))
         .expect("main command in README");
     let args: Vec<&str> = line.split_whitespace().skip(4).collect();
     let dir = tempfile::tempdir().unwrap();
-    // Run from the repository so the bundled example path resolves; send outputs to a temp dir.
+    // Run from the repository so the bundled paths resolve; send the outputs to a temp dir.
     let mut fixed = Vec::new();
     let mut it = args.iter();
     while let Some(a) = it.next() {
         fixed.push(a.to_string());
-        if *a == "-o" || *a == "--png" {
-            let name = it.next().expect("file after flag");
-            let file = std::path::Path::new(name).file_name().unwrap().to_owned();
-            fixed.push(dir.path().join(file).to_string_lossy().into_owned());
+        if *a == "-o" {
+            it.next().expect("folder after -o");
+            fixed.push(dir.path().join("run").to_string_lossy().into_owned());
         }
     }
     let out = Command::new(env!("CARGO_BIN_EXE_agarium"))
@@ -52,16 +51,12 @@ fn readme_main_command_runs() {
         .current_dir(env!("CARGO_MANIFEST_DIR"))
         .output()
         .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let report = String::from_utf8_lossy(&out.stdout);
-    assert!(
-        report.contains("negative edge weights        0"),
-        "{report}"
-    );
-    assert!(dir.path().join("lobed-dish.vtu").exists());
-    assert!(dir.path().join("lobed-dish.png").exists());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{err}");
+    assert!(err.contains("reached t = 2.400000e1"), "{err}");
+    // The README promises files _0000 to _0006.
+    for k in 0..=6 {
+        let f = dir.path().join("run").join(format!("colony_4species_{k:04}.vtu"));
+        assert!(f.exists(), "{} missing", f.display());
+    }
 }
