@@ -161,6 +161,9 @@ struct System {
     layout: BlockLayout,
     matrix: CsMat<f64>,
     solver: LinearSolver,
+    /// Values of the matrix last prepared, kept for single-species systems: an operator that
+    /// has not changed (pure diffusion with linear decay at a fixed dt) is not factored again.
+    last_prepared: Option<Vec<f64>>,
 }
 
 /// A mesh, a problem, settings, and the evolving state.
@@ -197,11 +200,13 @@ impl std::fmt::Debug for Simulation {
 fn system(disc: &Discretisation, species: Vec<usize>, params: &StepperParams) -> System {
     let layout = disc.layout(&species);
     let matrix = layout.matrix(&disc.graph);
+    let last_prepared = (species.len() == 1).then(Vec::new);
     System {
         species,
         layout,
         matrix,
         solver: LinearSolver::new(params.linear.clone()),
+        last_prepared,
     }
 }
 
@@ -379,10 +384,14 @@ impl Simulation {
                 .dt_next
                 .min(self.params.dt_max.unwrap_or(f64::INFINITY));
             let mut hits_end = false;
-            if dt >= remaining {
-                dt = remaining;
+            if dt >= remaining * (1.0 - 1e-9) || dt > remaining {
+                // The last step lands on the target (a fixed step that is a round-off away
+                // from it keeps its size: the target is then taken as the new time).
+                if self.params.adaptive || dt > remaining * (1.0 + 1e-9) {
+                    dt = remaining;
+                }
                 hits_end = true;
-            } else if dt > 0.5 * remaining {
+            } else if dt > 0.5 * remaining && self.params.adaptive {
                 // Two nearly equal steps rather than a long one and a sliver.
                 dt = 0.5 * remaining;
             }
@@ -650,6 +659,31 @@ impl Simulation {
         result.map(|_| total)
     }
 
+    /// Error-weighted RMS of the residual rows of `sys`, each row divided by its node's mass
+    /// and time coefficient so that it reads in the units of the state.
+    fn residual_norm(&self, sys: &System, u: &[f64], g: &[f64], time: TimeTerm<'_>) -> f64 {
+        let n = self.n;
+        let mut sum = 0.0;
+        for &s in &sys.species {
+            let steady = matches!(
+                self.problem.species[s].kind,
+                SpeciesKind::QuasiSteady { .. }
+            );
+            let c = if steady {
+                1.0
+            } else {
+                time.coef.max(f64::MIN_POSITIVE)
+            };
+            for i in 0..n {
+                let k = s * n + i;
+                let w = self.params.atol + self.params.rtol * u[k].abs();
+                let r = g[k] / (self.disc.mass[i] * c * w);
+                sum += r * r;
+            }
+        }
+        (sum / (sys.species.len() * n).max(1) as f64).sqrt()
+    }
+
     /// Newton iterations on `sys` (the other species fixed), updating `u` in place. Stops when
     /// the error-weighted RMS norm of the update is at most `tol`, after `max` iterations.
     fn newton(
@@ -692,10 +726,20 @@ impl Simulation {
             if rhs.iter().any(|v| !v.is_finite()) {
                 return Err(Failure::NonFinite);
             }
-            if fresh {
+            let unchanged = sys
+                .last_prepared
+                .as_ref()
+                .is_some_and(|v| v.as_slice() == sys.matrix.data());
+            if fresh && !unchanged {
+                if let Some(v) = sys.last_prepared.as_mut() {
+                    v.clear();
+                }
                 sys.solver
                     .prepare(&sys.matrix, sys.species.len())
                     .map_err(Failure::Linear)?;
+                if let Some(v) = sys.last_prepared.as_mut() {
+                    v.extend_from_slice(sys.matrix.data());
+                }
                 self.stats.jacobians += 1;
             }
             fresh_last = fresh;
@@ -714,17 +758,60 @@ impl Simulation {
                     let d = delta[slot * n + i];
                     let w = self.params.atol + self.params.rtol * u[k].abs();
                     sum += (d / w) * (d / w);
-                    u[k] += d;
                 }
             }
-            let norm = (sum / dim.max(1) as f64).sqrt();
+            let mut norm = (sum / dim.max(1) as f64).sqrt();
             if !norm.is_finite() {
                 return Err(Failure::NonFinite);
+            }
+            // An update larger than the error tolerance means Newton is far from the
+            // solution: backtrack (Armijo on the scaled residual) before taking it. Damped
+            // updates keep conservation, since Newton started from a conserving state.
+            let mut lambda = 1.0;
+            if norm > 1.0 && tol.is_finite() {
+                let rho0 = self.residual_norm(sys, u, &g, time);
+                let mut trial = u.to_vec();
+                let mut accepted = false;
+                for _ in 0..6 {
+                    for (slot, &s) in sys.species.iter().enumerate() {
+                        for i in 0..n {
+                            let k = s * n + i;
+                            trial[k] = u[k] + lambda * delta[slot * n + i];
+                        }
+                    }
+                    let ok = self
+                        .disc
+                        .evaluate(&self.problem, &trial, t, false, &mut self.ws)
+                        .is_ok();
+                    if ok {
+                        self.disc
+                            .assemble(&self.problem, &trial, time, &mut self.ws, &mut g, None);
+                        let rho = self.residual_norm(sys, &trial, &g, time);
+                        if rho.is_finite() && rho <= (1.0 - 1e-4 * lambda) * rho0 {
+                            accepted = true;
+                            break;
+                        }
+                    }
+                    lambda *= 0.5;
+                }
+                if !accepted {
+                    return Err(Failure::Newton(
+                        "line search found no decrease of the residual".into(),
+                    ));
+                }
+                norm *= lambda;
+            }
+            for (slot, &s) in sys.species.iter().enumerate() {
+                for i in 0..n {
+                    u[s * n + i] += lambda * delta[slot * n + i];
+                }
             }
             if norm <= tol || it == max && tol.is_infinite() {
                 return Ok(it);
             }
-            fresh = false;
+            // The Jacobian of a damped iteration is stale for the next one.
+            let damped = lambda < 1.0;
+            fresh = damped;
             if let Some(prev) = previous {
                 let theta = norm / prev;
                 if theta > 0.9 && fresh_last && it >= 3 {
@@ -733,7 +820,7 @@ impl Simulation {
                         "no contraction (update norm {norm:.3e} after {prev:.3e})"
                     )));
                 }
-                fresh = theta > 0.25;
+                fresh = damped || theta > 0.25;
             }
             previous = Some(norm);
         }
