@@ -2,10 +2,15 @@
 //! file beside the target and renamed into place, so a failure never leaves a partial file.
 
 mod atomic;
+mod picture;
 mod png;
 mod vtu;
 
 pub use atomic::{write_atomically, write_atomically_via_path};
+pub use picture::{
+    snapshot_title, write_field_png, write_series_png, PlotOptions, Series, SnapshotOptions,
+    ValueRange, NAN_GREY,
+};
 pub use png::{write_mesh_png, PngOptions};
 pub use vtu::{write_vtu, Field};
 
