@@ -100,7 +100,7 @@ pub enum CouplingArg {
 /// `--linear` values.
 #[derive(clap::ValueEnum, Clone, Copy, Debug)]
 pub enum LinearArg {
-    /// Direct up to 50,000 unknowns, iterative above.
+    /// Direct up to 20,000 unknowns, iterative above.
     Auto,
     /// Sparse LU.
     Direct,

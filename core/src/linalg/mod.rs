@@ -91,7 +91,7 @@ impl Default for LinearParams {
     fn default() -> Self {
         Self {
             method: Method::Auto,
-            direct_limit: 50_000,
+            direct_limit: 20_000,
             rtol: 1e-10,
             max_iterations: 500,
             krylov: Krylov::Auto,
@@ -318,15 +318,16 @@ impl LinearSolver {
         } else {
             p.block_scheme
         };
-        let kind = match p.preconditioner {
-            Preconditioner::Auto => Preconditioner::Amg,
-            k => k,
-        };
+        let kind = p.preconditioner;
         let reuse = match &self.iterative {
             Some(it) => {
                 it.blocks == blocks
                     && it.a.same_pattern(a)
                     && (it.krylov == Krylov::Cg) == (krylov == Krylov::Cg)
+                    && match &it.pc {
+                        Pc::Scalar(s) => s.kind() == precond::resolve(kind, &csr),
+                        Pc::Block(_) => true,
+                    }
             }
             None => false,
         };

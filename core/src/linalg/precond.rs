@@ -13,8 +13,8 @@ use serde::{Deserialize, Serialize};
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
 pub enum Preconditioner {
-    /// Algebraic multigrid on scalar systems; a block preconditioner with multigrid per
-    /// species block on coupled systems.
+    /// Per scalar system or species block: ILU(0) when the diagonal dominates (small
+    /// dt·D/h²), algebraic multigrid otherwise.
     #[default]
     Auto,
     /// None (identity).
@@ -157,10 +157,62 @@ pub(crate) enum Scalar {
     Amg(Box<Amg>),
 }
 
+/// Resolves [`Preconditioner::Auto`] for `a` from how strongly its diagonal dominates, a
+/// proxy for dt·D/h² that needs no knowledge of where the matrix came from: for M/dt + D·K on
+/// a quality mesh, diagonal/Σ|off-diagonal| ≈ 1 + 0.25·h²/(dt·D). Mass-dominated systems
+/// (ratio ≥ 1.01, i.e. dt·D/h² ≲ 25) converge in few ILU(0) iterations, which are far cheaper
+/// than multigrid cycles; the rest get multigrid, whose iteration count does not grow with
+/// the mesh (crossover measured with `cargo bench --bench linalg`).
+pub(crate) fn resolve(kind: Preconditioner, a: &Csr) -> Preconditioner {
+    if kind != Preconditioner::Auto {
+        return kind;
+    }
+    let step = (a.n / 1000).max(1);
+    let mut ratios: Vec<f64> = (0..a.n)
+        .step_by(step)
+        .map(|i| {
+            let (cols, vals) = a.row(i);
+            let (mut d, mut off) = (0.0, 0.0);
+            for (&j, &v) in cols.iter().zip(vals) {
+                if j == i {
+                    d += v.abs();
+                } else {
+                    off += v.abs();
+                }
+            }
+            if off > 0.0 {
+                d / off
+            } else {
+                f64::INFINITY
+            }
+        })
+        .collect();
+    if ratios.is_empty() {
+        return Preconditioner::Jacobi;
+    }
+    let mid = ratios.len() / 2;
+    let (_, median, _) = ratios.select_nth_unstable_by(mid, |x, y| x.total_cmp(y));
+    if *median >= 1.01 {
+        Preconditioner::Ilu0
+    } else {
+        Preconditioner::Amg
+    }
+}
+
 impl Scalar {
-    /// Builds `kind` (never `Auto`: resolved by the caller) for `a`.
+    /// The preconditioner kind this is.
+    pub(crate) fn kind(&self) -> Preconditioner {
+        match self {
+            Self::Identity(_) => Preconditioner::None,
+            Self::Jacobi(_) => Preconditioner::Jacobi,
+            Self::Ilu0(_) => Preconditioner::Ilu0,
+            Self::Amg(_) => Preconditioner::Amg,
+        }
+    }
+
+    /// Builds `kind` for `a` (`Auto` resolved by [`resolve`]).
     pub(crate) fn new(kind: Preconditioner, a: &Csr) -> Result<Self, LinalgError> {
-        Ok(match kind {
+        Ok(match resolve(kind, a) {
             Preconditioner::None => Self::Identity(Identity),
             Preconditioner::Jacobi => Self::Jacobi(Jacobi::new(a)?),
             Preconditioner::Ilu0 => Self::Ilu0(Ilu0::new(a)?),
@@ -247,7 +299,9 @@ impl Block {
             return Ok(Part::Diagonal(Jacobi::new(&sub)?));
         }
         match old {
-            Some(Part::General { a, mut p }) if a.ptr == sub.ptr && a.col == sub.col => {
+            Some(Part::General { a, mut p })
+                if a.ptr == sub.ptr && a.col == sub.col && p.kind() == resolve(self.kind, &sub) =>
+            {
                 p.refresh(&sub)?;
                 Ok(Part::General { a: sub, p })
             }
