@@ -9,7 +9,7 @@
 //!   gathering within a few element diameters of its peak, with the peak still growing, is
 //!   reported as a suspected blow-up whose verdict depends on the mesh.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use super::BlowupParams;
 use crate::mesh::Mesh;
@@ -88,8 +88,9 @@ impl BlowupReport {
     }
 }
 
-/// Per-species history the detector looks at.
-#[derive(Clone, Debug)]
+/// Per-species history the detector looks at (saved in checkpoints, so a resumed run
+/// decides exactly as the uninterrupted one).
+#[derive(Clone, Debug, Serialize, Deserialize)]
 pub(crate) struct Monitor {
     params: BlowupParams,
     /// Species watched for concentration (the climbing species of chemotaxis terms).
@@ -99,14 +100,27 @@ pub(crate) struct Monitor {
     initial_peak_per_mass: Vec<f64>,
     peak_per_mass: Vec<Vec<f64>>,
     dts: Vec<(f64, f64)>,
-    /// Largest incident edge length at each node.
+    /// Largest incident edge length at each node (recomputed from the mesh on restore).
+    #[serde(skip)]
     local_h: Vec<f64>,
+    #[serde(skip)]
     min_area: f64,
 }
 
 impl Monitor {
+    /// Recomputes the mesh-derived fields after deserialisation.
+    pub fn attach(&mut self, mesh: &Mesh) {
+        let fresh = Monitor::new(self.params.clone(), mesh, self.chemotactic.clone(), &[]);
+        self.local_h = fresh.local_h;
+        self.min_area = fresh.min_area;
+    }
+
     pub fn new(params: BlowupParams, mesh: &Mesh, chemotactic: Vec<bool>, u: &[f64]) -> Self {
-        let (sups, ratios) = peaks(mesh, u, chemotactic.len());
+        let (sups, ratios) = if u.is_empty() {
+            (vec![], vec![])
+        } else {
+            peaks(mesh, u, chemotactic.len())
+        };
         let mut local_h = vec![0.0f64; mesh.num_nodes()];
         for &[a, b] in &mesh.edges {
             let (pa, pb) = (mesh.node(a), mesh.node(b));

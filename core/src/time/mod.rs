@@ -7,9 +7,11 @@
 //! create and advance many of them independently.
 
 mod blowup;
+mod checkpoint;
 mod params;
 mod simulation;
 
 pub use blowup::{BlowupKind, BlowupReport};
+pub use checkpoint::{Checkpoint, CheckpointError};
 pub use params::{BlowupParams, Coupling, Scheme, StepperParams};
 pub use simulation::{Control, Outcome, Simulation, SolveError, Stats, StepReport};

@@ -35,8 +35,9 @@ pub enum Coupling {
 pub struct BlowupParams {
     /// Watch for blow-up at all.
     pub enabled: bool,
-    /// Step-size floor, as a fraction of the span of the current `advance_to` call: a run
-    /// whose step falls below it while a sup-norm keeps growing is stopped.
+    /// Step-size floor, as a fraction of the span from the run's start to the current
+    /// `advance_to` target: a run whose step falls below it while a sup-norm keeps growing
+    /// is stopped.
     pub dt_floor: f64,
     /// Growth of a sup-norm over the last `window` accepted steps that counts as "keeps
     /// growing" together with the step-size floor.

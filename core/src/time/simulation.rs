@@ -7,6 +7,7 @@ use sprs::CsMat;
 use thiserror::Error;
 
 use super::blowup::{BlowupReport, Monitor};
+use super::checkpoint::{Checkpoint, CheckpointError, Meta};
 use super::{Coupling, Scheme, StepperParams};
 use crate::fem::{BlockLayout, Discretisation, TimeTerm, Workspace};
 use crate::kernel::{KernelError, KernelInput, Scratch, SpeciesKind};
@@ -104,7 +105,7 @@ impl Failure {
 }
 
 /// Counters over the life of a simulation.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 pub struct Stats {
     /// Accepted steps.
     pub steps: usize,
@@ -184,6 +185,8 @@ pub struct Simulation {
     monitor: Monitor,
     /// Redo the next attempt with backward Euler (after a BDF2 step left the positive cone).
     force_euler: bool,
+    /// Time the run started at (the blow-up floor is relative to the span from here).
+    t_start: f64,
 }
 
 impl std::fmt::Debug for Simulation {
@@ -275,6 +278,7 @@ impl Simulation {
             ws: Workspace::default(),
             monitor,
             force_euler: false,
+            t_start: t0,
         };
         let steady: Vec<usize> = (0..sc)
             .filter(|&s| matches!(sim.problem.species[s].kind, SpeciesKind::QuasiSteady { .. }))
@@ -352,6 +356,61 @@ impl Simulation {
         self.dt_next
     }
 
+    /// Everything needed to continue this run exactly as if it had not stopped.
+    pub fn checkpoint(&self) -> Checkpoint {
+        Checkpoint {
+            meta: Meta {
+                species: self.names.clone(),
+                nodes: self.n,
+                dt_next: self.dt_next,
+                stats: self.stats,
+                force_euler: self.force_euler,
+                monitor: self.monitor.clone(),
+                times: self.history.iter().map(|h| h.0).collect(),
+                t_start: self.t_start,
+            },
+            states: self.history.iter().map(|h| h.1.clone()).collect(),
+        }
+    }
+
+    /// Continues from `checkpoint` with the same problem, mesh and settings it was taken with
+    /// (the caller checks the model and mesh are the same; species and node counts are
+    /// checked here).
+    pub fn restore(
+        problem: Problem,
+        mesh: Arc<Mesh>,
+        params: StepperParams,
+        checkpoint: Checkpoint,
+    ) -> Result<Self, CheckpointError> {
+        let mismatch = |m: String| CheckpointError::Mismatch(m);
+        let names: Vec<String> = problem.species.iter().map(|s| s.name.clone()).collect();
+        if names != checkpoint.meta.species {
+            return Err(mismatch(format!(
+                "species {:?}, checkpoint has {:?}",
+                names, checkpoint.meta.species
+            )));
+        }
+        if mesh.num_nodes() != checkpoint.meta.nodes {
+            return Err(mismatch(format!(
+                "{} mesh nodes, checkpoint has {}",
+                mesh.num_nodes(),
+                checkpoint.meta.nodes
+            )));
+        }
+        let t0 = checkpoint.meta.times.first().copied().unwrap_or(0.0);
+        let mut sim =
+            Simulation::new(problem, mesh, params, t0).map_err(|e| mismatch(e.to_string()))?;
+        let Checkpoint { meta, states } = checkpoint;
+        sim.history = meta.times.into_iter().zip(states).collect();
+        sim.dt_next = meta.dt_next;
+        sim.stats = meta.stats;
+        sim.force_euler = meta.force_euler;
+        sim.t_start = meta.t_start;
+        sim.monitor = meta.monitor;
+        sim.monitor.attach(&sim.mesh);
+        Ok(sim)
+    }
+
     /// Advances to exactly `t_end`, calling `observer` after every accepted step.
     pub fn advance_to(
         &mut self,
@@ -364,7 +423,7 @@ impl Simulation {
                 "target time {t_end} is before the current time {t_start}"
             )));
         }
-        let floor = self.params.blowup.dt_floor * (t_end - t_start);
+        let floor = self.params.blowup.dt_floor * (t_end - self.t_start);
         if self.dt_next <= 0.0 {
             self.dt_next = self.initial_step(t_end - t_start)?;
         }
