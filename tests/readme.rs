@@ -56,7 +56,10 @@ fn readme_main_command_runs() {
     assert!(err.contains("reached t = 2.400000e1"), "{err}");
     // The README promises files _0000 to _0006.
     for k in 0..=6 {
-        let f = dir.path().join("run").join(format!("colony_4species_{k:04}.vtu"));
+        let f = dir
+            .path()
+            .join("run")
+            .join(format!("colony_4species_{k:04}.vtu"));
         assert!(f.exists(), "{} missing", f.display());
     }
 }

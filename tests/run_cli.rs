@@ -11,7 +11,9 @@ fn agarium(args: &[&str]) -> Output {
 }
 
 fn model_path(name: &str) -> String {
-    let p: PathBuf = [env!("CARGO_MANIFEST_DIR"), "models", name].iter().collect();
+    let p: PathBuf = [env!("CARGO_MANIFEST_DIR"), "models", name]
+        .iter()
+        .collect();
     p.display().to_string()
 }
 
@@ -54,7 +56,9 @@ fn a_run_writes_one_file_per_output_time_and_a_summary() {
     let err = stderr(&o);
     assert!(o.status.success(), "{err}");
     let names = files(&out);
-    let expected: Vec<String> = (0..=4).map(|k| format!("colony_4species_{k:04}.vtu")).collect();
+    let expected: Vec<String> = (0..=4)
+        .map(|k| format!("colony_4species_{k:04}.vtu"))
+        .collect();
     assert_eq!(names, expected);
     assert!(err.contains("reached t = 1.000000e0"), "{err}");
     // The conserved combination is reported with its drift, at round-off level.
@@ -117,17 +121,47 @@ fn bad_options_exit_2_and_write_nothing() {
     let o_str = out.to_str().unwrap();
     let model = model_path("colony_4species.rhai");
     let cases: Vec<Vec<&str>> = vec![
-        vec!["run", &model, "--plate", "circle:5", "--end", "-1", "-o", o_str],
-        vec!["run", &model, "--plate", "circle:5", "--end", "1", "--every", "0", "-o", o_str],
-        vec!["run", &model, "--plate", "circle:5", "--end", "1", "--rtol", "nan", "-o", o_str],
-        vec!["run", &model, "--plate", "circle:5", "--end", "1", "--set", "nope=1", "-o", o_str],
-        vec!["run", "missing.rhai", "--plate", "circle:5", "--end", "1", "-o", o_str],
-        vec!["run", &model, "--plate", "circle:-5", "--end", "1", "-o", o_str],
+        vec![
+            "run", &model, "--plate", "circle:5", "--end", "-1", "-o", o_str,
+        ],
+        vec![
+            "run", &model, "--plate", "circle:5", "--end", "1", "--every", "0", "-o", o_str,
+        ],
+        vec![
+            "run", &model, "--plate", "circle:5", "--end", "1", "--rtol", "nan", "-o", o_str,
+        ],
+        vec![
+            "run", &model, "--plate", "circle:5", "--end", "1", "--set", "nope=1", "-o", o_str,
+        ],
+        vec![
+            "run",
+            "missing.rhai",
+            "--plate",
+            "circle:5",
+            "--end",
+            "1",
+            "-o",
+            o_str,
+        ],
+        vec![
+            "run",
+            &model,
+            "--plate",
+            "circle:-5",
+            "--end",
+            "1",
+            "-o",
+            o_str,
+        ],
     ];
     for args in cases {
         let o = agarium(&args);
         assert_eq!(o.status.code(), Some(2), "{args:?}: {}", stderr(&o));
-        assert!(stderr(&o).starts_with("error: "), "{args:?}: {}", stderr(&o));
+        assert!(
+            stderr(&o).starts_with("error: "),
+            "{args:?}: {}",
+            stderr(&o)
+        );
         assert!(!out.exists(), "{args:?} created the output folder");
     }
 }
