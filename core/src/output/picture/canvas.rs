@@ -81,7 +81,8 @@ impl Canvas {
     pub fn fill_triangle(&mut self, p: [[f64; 2]; 3], v: [f64; 3], colour: &impl Fn(f64) -> Rgb) {
         let [a, b, c] = p;
         let area = (b[0] - a[0]) * (c[1] - a[1]) - (c[0] - a[0]) * (b[1] - a[1]);
-        if !(area.abs() > 1e-12) {
+        // Degenerate (or NaN-cornered) triangles cover no pixel centre.
+        if area.is_nan() || area.abs() <= 1e-12 {
             return;
         }
         let inv = 1.0 / area;

@@ -48,6 +48,20 @@ impl Scale {
         }
     }
 
+    /// A log scale over the decimal exponents `[a, b]` (finite, `a <= b`; widened if empty).
+    pub fn log_exponents(a: f64, b: f64) -> Scale {
+        let (a, b) = if b > a {
+            (a, b)
+        } else {
+            (a - 0.0414, b + 0.0414)
+        };
+        Scale {
+            lo: a,
+            hi: b,
+            log: true,
+        }
+    }
+
     /// The scale's own coordinate of `v`: NaN stays NaN, values at or below zero on a log
     /// scale go to minus infinity (the bottom end after clamping).
     fn coordinate(&self, v: f64) -> f64 {

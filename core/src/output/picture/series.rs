@@ -116,7 +116,7 @@ pub(super) fn render_series_with_frame(
             ];
         }
     }
-    if !(bb[0] <= bb[2]) {
+    if bb[0] > bb[2] {
         return Err(if log_y {
             "nothing to plot: no point with finite x and positive finite y".into()
         } else {
@@ -125,16 +125,15 @@ pub(super) fn render_series_with_frame(
     }
     let xs = Scale::linear(bb[0], bb[2]);
     let ys = if log_y {
-        // 5 % of the decades as margin, multiplicatively.
-        let span = (bb[3] / bb[1]).log10();
-        let f = 10f64.powf(0.05 * span.max(0.0));
-        Scale::log(bb[1] / f, bb[3] * f)
+        // 5 % margins, in decades: exponents stay finite where ratios would overflow.
+        let (a, b) = (bb[1].log10(), bb[3].log10());
+        let pad = 0.05 * (b - a);
+        Scale::log_exponents(a - pad, b + pad)
     } else {
-        let pad = 0.05 * (bb[3] / 2.0 - bb[1] / 2.0) * 2.0;
-        let pad = if pad.is_finite() { pad } else { 0.0 };
-        Scale::linear(bb[1] - pad, bb[3] + pad)
+        // Halves first and ends kept finite, for values near ±f64::MAX.
+        let pad = 0.1 * (bb[3] / 2.0 - bb[1] / 2.0);
+        Scale::linear((bb[1] - pad).max(-f64::MAX), (bb[3] + pad).min(f64::MAX))
     };
-
     let (width, height) = (
         options.width.clamp(320, 8192) as f64,
         options.height.clamp(240, 8192) as f64,

@@ -387,7 +387,7 @@ fn series_plot_reads_back_and_log_axis_skips_non_positive_points() {
         points: vec![(0.0, 0.0), (1.0, -1.0), (f64::NAN, 2.0)],
     };
     let p2 = dir.path().join("bad.png");
-    assert!(write_series_png(&p2, "", "", &[bad.clone()], &options).is_err());
+    assert!(write_series_png(&p2, "", "", std::slice::from_ref(&bad), &options).is_err());
     assert!(!p2.exists());
     // The same data on a linear axis (NaN point skipped) is fine, as is a single point.
     let linear = PlotOptions::default();
@@ -399,4 +399,23 @@ fn series_plot_reads_back_and_log_axis_skips_non_positive_points() {
     };
     write_series_png(&p2, "one", "x", &[one], &linear).unwrap();
     assert!(write_series_png(&p2, "", "", &[], &linear).is_err());
+    // Extreme values on both kinds of axis still give lines inside the frame.
+    let extreme = Series {
+        name: "extreme".into(),
+        points: vec![(-f64::MAX, f64::MIN_POSITIVE), (f64::MAX, f64::MAX)],
+    };
+    for log_y in [false, true] {
+        let o = PlotOptions {
+            log_y,
+            ..PlotOptions::default()
+        };
+        let (c, _) = render_series_with_frame("", "", std::slice::from_ref(&extreme), &o).unwrap();
+        let mut k = 0;
+        for y in 0..c.height {
+            for x in 0..c.width {
+                k += usize::from(c.get(x, y) == PALETTE[0]);
+            }
+        }
+        assert!(k > 100, "log_y {log_y}: {k} line pixels");
+    }
 }
