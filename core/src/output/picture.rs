@@ -264,7 +264,8 @@ fn layout_field(
     has_nan: bool,
 ) -> FieldLayout {
     let width = options.width.clamp(320, 8192) as f64;
-    let em = width / 900.0;
+    // Scales with the width, but text stays legible on small pictures.
+    let em = (width / 900.0).max(0.7);
     let margin = 24.0 * em;
     let title_band = if options.title.is_empty() {
         margin

@@ -138,7 +138,8 @@ pub(super) fn render_series_with_frame(
         options.width.clamp(320, 8192) as f64,
         options.height.clamp(240, 8192) as f64,
     );
-    let em = width.min(height * 1.6) / 900.0;
+    // Scales with the picture, but text stays legible on small ones.
+    let em = (width.min(height * 1.6) / 900.0).max(0.7);
     let margin = 20.0 * em;
     let tick_size = 17.0 * em;
     let label_size = 19.0 * em;
