@@ -7,7 +7,7 @@ use std::time::Instant;
 
 use agarium_core::linalg::{LinearParams, Method};
 use agarium_core::mesh::{build_mesh, MeshError};
-use agarium_core::observe::Diagnostics;
+use agarium_core::observe::{Diagnostics, DiagnosticsCsv, PvdIndex, StepFigures};
 use agarium_core::output::{write_vtu, Field};
 use agarium_core::time::{Control, Coupling, Outcome, Scheme, Simulation, StepperParams};
 use agarium_scripting::{Model, Overrides};
@@ -221,15 +221,66 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     }
     let start = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), 0.0)
         .map_err(CliError::failure)?;
-    write_state(&dir, &stem, 0, &sim, &start)?;
+    let mut pvd = PvdIndex::new();
+    let mut csv = DiagnosticsCsv::new(
+        dir.join(format!("{stem}_diagnostics.csv")),
+        sim.species_names(),
+        &start,
+    );
+    csv.push(
+        StepFigures {
+            t: 0.0,
+            dt: 0.0,
+            newton: 0,
+            rejections: 0,
+        },
+        &start,
+    );
+    write_state(&dir, &stem, 0, &sim, &start, &mut pvd)?;
     let mut outcome = Outcome::Reached;
+    let mut warned = false;
+    let mut failure: Option<String> = None;
     for (k, &t) in times.iter().enumerate() {
-        outcome = sim
-            .advance_to(t, &mut |_| Control::Continue)
-            .map_err(|e| CliError::failure(format!("{}: {e}", args.model.display())))?;
+        let result = sim.advance_to(t, &mut |rep| {
+            let state = rep.state.as_slice().unwrap_or(&[]);
+            match Diagnostics::evaluate(&problem, &mesh, state, rep.time) {
+                Ok(d) => {
+                    let drifts = csv.push(
+                        StepFigures {
+                            t: rep.time,
+                            dt: rep.dt,
+                            newton: rep.newton_iterations,
+                            rejections: rep.rejections,
+                        },
+                        &d,
+                    );
+                    for (name, drift) in drifts {
+                        if drift > CONSERVED_WARNING && !warned {
+                            warned = true;
+                            eprintln!(
+                                "warning: `{name}` is declared conserved but drifted by {drift:.2e} (relative) by t = {:.6e}",
+                                rep.time
+                            );
+                        }
+                    }
+                    Control::Continue
+                }
+                Err(e) => {
+                    failure = Some(e.to_string());
+                    Control::Stop
+                }
+            }
+        });
+        // Whatever happened, the table so far is kept.
+        csv.save().map_err(CliError::failure)?;
+        if let Some(e) = failure.take() {
+            return Err(CliError::failure(format!("diagnostics: {e}")));
+        }
+        outcome =
+            result.map_err(|e| CliError::failure(format!("{}: {e}", args.model.display())))?;
         let d = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), sim.time())
             .map_err(CliError::failure)?;
-        write_state(&dir, &stem, k + 1, &sim, &d)?;
+        write_state(&dir, &stem, k + 1, &sim, &d, &mut pvd)?;
         if !quiet {
             let s = sim.stats();
             eprintln!(
@@ -258,12 +309,18 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     }
 }
 
+/// Relative drift of a conserved integral above which the run warns (far above round-off and
+/// the iterative solvers' tolerance, far below anything that changes a picture).
+const CONSERVED_WARNING: f64 = 1e-8;
+
+/// Writes state number `k` and adds it to the series index.
 fn write_state(
     dir: &Path,
     stem: &str,
     k: usize,
     sim: &Simulation,
     d: &Diagnostics,
+    pvd: &mut PvdIndex,
 ) -> Result<(), CliError> {
     let state = sim.state();
     let names = sim.species_names();
@@ -278,8 +335,11 @@ fn write_state(
     for (name, values) in &d.fields {
         fields.push(Field { name, values });
     }
-    let path = dir.join(format!("{stem}_{k:04}.vtu"));
-    write_vtu(&path, sim.mesh(), &fields, &[]).map_err(CliError::failure)
+    let name = format!("{stem}_{k:04}.vtu");
+    write_vtu(&dir.join(&name), sim.mesh(), &fields, &[]).map_err(CliError::failure)?;
+    pvd.push(sim.time(), &name);
+    pvd.write(&dir.join(format!("{stem}.pvd")))
+        .map_err(CliError::failure)
 }
 
 fn summary(sim: &Simulation, start: &Diagnostics, last: &Diagnostics, seconds: f64) {

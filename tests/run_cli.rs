@@ -55,11 +55,39 @@ fn a_run_writes_one_file_per_output_time_and_a_summary() {
     ]);
     let err = stderr(&o);
     assert!(o.status.success(), "{err}");
-    let names = files(&out);
+    let names: Vec<String> = files(&out)
+        .into_iter()
+        .filter(|f| f.ends_with(".vtu"))
+        .collect();
     let expected: Vec<String> = (0..=4)
         .map(|k| format!("colony_4species_{k:04}.vtu"))
         .collect();
     assert_eq!(names, expected);
+    // The series index lists the five files at their times.
+    let pvd = std::fs::read_to_string(out.join("colony_4species.pvd")).unwrap();
+    assert_eq!(pvd.matches("<DataSet").count(), 5, "{pvd}");
+    assert!(
+        pvd.contains(r#"timestep="1e0" group="" part="0" file="colony_4species_0004.vtu""#),
+        "{pvd}"
+    );
+    // The diagnostics table: a header and one row per accepted step plus the start.
+    let csv = std::fs::read_to_string(out.join("colony_4species_diagnostics.csv")).unwrap();
+    let mut lines = csv.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    assert_eq!(
+        &header[..4],
+        &["t", "dt", "newton_iterations", "rejections"]
+    );
+    let rows: Vec<Vec<f64>> = lines
+        .map(|l| l.split(',').map(|x| x.parse().unwrap()).collect())
+        .collect();
+    assert!(rows.iter().all(|r| r.len() == header.len()));
+    assert_eq!(rows.last().unwrap()[0], 1.0);
+    let drift_col = header
+        .iter()
+        .position(|h| *h == "biomass_and_food_drift")
+        .expect("drift column");
+    assert!(rows.iter().all(|r| r[drift_col] < 1e-12));
     assert!(err.contains("reached t = 1.000000e0"), "{err}");
     // The conserved combination is reported with its drift, at round-off level.
     let line = err
