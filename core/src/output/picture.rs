@@ -4,11 +4,12 @@
 //! Pixels are computed by our own rasteriser (`picture/canvas.rs`): each triangle is filled
 //! with the value interpolated linearly from its corners at every pixel centre (exactly the
 //! P1 interpolant, no per-triangle flat shading), and strokes are antialiased by distance to
-//! the segment. A direct RGB buffer is both exact and fast (a 10⁵-node field draws in tens of
-//! milliseconds); plotters' bitmap backend is used only for text, through its `ab_glyph`
-//! renderer with a bundled DejaVu Sans, so no system font library is linked.
+//! the segment. A direct RGB buffer is both exact and fast (a 10⁵-node field, PNG encoding
+//! included, takes tens of milliseconds in a release build); plotters' bitmap backend is used
+//! only for text, through its `ab_glyph` renderer with a bundled DejaVu Sans, so no system
+//! font library is linked.
 //!
-//! Colour map: viridis (van der Walt and Smith's perceptually uniform map), linearly
+//! Colour map: viridis, the perceptually uniform and colour-blind-friendly map, linearly
 //! interpolated through the eight control colours of plotters' `ViridisRGB`, from dark
 //! violet (68, 1, 84) at the low end to yellow (254, 232, 37) at the high end.
 
