@@ -120,3 +120,97 @@ fn independent_readers_agree_with_the_report() {
     );
     assert!(got["meshio_node_area_max"].as_f64().unwrap() > got["node_area_min"].as_f64().unwrap());
 }
+
+const RUN_READER: &str = r#"
+import json, sys
+import vtk
+from vtk.util.numpy_support import vtk_to_numpy
+import meshio
+
+path = sys.argv[1]
+r = vtk.vtkXMLUnstructuredGridReader()
+r.SetFileName(path)
+r.Update()
+g = r.GetOutput()
+pd = g.GetPointData()
+names = [pd.GetArrayName(i) for i in range(pd.GetNumberOfArrays())]
+ranges = {n: [float(vtk_to_numpy(pd.GetArray(n)).min()), float(vtk_to_numpy(pd.GetArray(n)).max())] for n in names}
+m = meshio.read(path)
+print(json.dumps({
+    "points": g.GetNumberOfPoints(),
+    "names": names,
+    "ranges": ranges,
+    "meshio_names": sorted(m.point_data.keys()),
+    "meshio_u_max": float(m.point_data["u"].max()),
+}))
+"#;
+
+/// The last state of a run, read by VTK's XML reader and by meshio: every species and the
+/// declared field are present and their ranges are the ones the run's summary printed.
+#[test]
+fn independent_readers_read_run_states() {
+    let Some(python) = python_with_readers() else {
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let model = concat!(env!("CARGO_MANIFEST_DIR"), "/models/colony_4species.rhai");
+    let out = Command::new(env!("CARGO_BIN_EXE_agarium"))
+        .args([
+            "run", model, "--plate", "circle:4", "--size", "0.4", "--spot", "0,0,0.1", "--end",
+            "0.5", "--every", "0.5", "-o", "r",
+        ])
+        .current_dir(dir.path())
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr).into_owned();
+    assert!(out.status.success(), "{err}");
+    let read = Command::new(&python)
+        .args(["-c", RUN_READER])
+        .arg(dir.path().join("r/colony_4species_0001.vtu"))
+        .output()
+        .unwrap();
+    assert!(
+        read.status.success(),
+        "{}",
+        String::from_utf8_lossy(&read.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&read.stdout).unwrap();
+    let names: Vec<&str> = v["names"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|x| x.as_str().unwrap())
+        .collect();
+    assert_eq!(names, ["u", "c", "n", "w", "all_cells"]);
+    let nodes: u64 = err
+        .lines()
+        .next()
+        .and_then(|l| l.split(" on ").nth(1))
+        .and_then(|l| l.split(' ').next())
+        .and_then(|n| n.replace(',', "").parse().ok())
+        .expect("node count in the first line");
+    assert_eq!(v["points"].as_u64(), Some(nodes));
+    // The summary's min and max of each species, printed with 7 significant digits.
+    for s in ["u", "c", "n", "w"] {
+        let line = err
+            .lines()
+            .find(|l| l.trim_start().starts_with(&format!("{s} ")))
+            .expect("species line");
+        let cols: Vec<f64> = line
+            .split_whitespace()
+            .skip(1)
+            .map(|x| x.parse().unwrap())
+            .collect();
+        let range = &v["ranges"][s];
+        for (got, want) in [
+            (range[0].as_f64().unwrap(), cols[1]),
+            (range[1].as_f64().unwrap(), cols[2]),
+        ] {
+            assert!(
+                (got - want).abs() <= 1e-6 * want.abs().max(1e-300),
+                "{s}: {got} vs {want}"
+            );
+        }
+    }
+    assert_eq!(v["meshio_u_max"], v["ranges"]["u"][1]);
+}
