@@ -8,7 +8,10 @@ use std::time::Instant;
 use agarium_core::linalg::{LinearParams, Method};
 use agarium_core::mesh::{build_mesh, MeshError};
 use agarium_core::observe::{Diagnostics, DiagnosticsCsv, PvdIndex, StepFigures};
-use agarium_core::output::{write_vtu, Field};
+use agarium_core::output::{
+    snapshot_title, write_field_png, write_series_png, write_vtu, Field, PlotOptions, Series,
+    SnapshotOptions,
+};
 use agarium_core::time::{Control, Coupling, Outcome, Scheme, Simulation, StepperParams};
 use agarium_scripting::{Model, Overrides};
 
@@ -74,6 +77,13 @@ pub struct RunArgs {
     /// Fixed steps of --dt instead of error control.
     #[arg(long, requires = "dt")]
     pub fixed_step: bool,
+    /// Write a picture of this species or declared field at every output time
+    /// (MODEL-NAME_FIELD_0000.png, …); repeatable.
+    #[arg(long = "picture", value_name = "FIELD")]
+    pub pictures: Vec<String>,
+    /// Name of the model's time unit, for picture titles.
+    #[arg(long, value_name = "NAME", default_value = "")]
+    pub time_unit: String,
     /// Print nothing but errors.
     #[arg(short, long)]
     pub quiet: bool,
@@ -184,6 +194,26 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     let model = Model::load_file(&args.model, &overrides).map_err(CliError::input)?;
     let compiled = model.compile().map_err(CliError::input)?;
     let problem = compiled.to_problem();
+    let known: Vec<&str> = problem
+        .species
+        .iter()
+        .map(|s| s.name.as_str())
+        .chain(
+            problem
+                .diagnostics
+                .iter()
+                .filter(|d| !d.integral)
+                .map(|d| d.name.as_str()),
+        )
+        .collect();
+    for p in &args.pictures {
+        if !known.contains(&p.as_str()) {
+            return Err(CliError::input(format!(
+                "--picture {p}: the model has no species or field of that name (it has: {})",
+                known.join(", ")
+            )));
+        }
+    }
 
     let spec = args.plate.spec()?;
     spec.check_numbers().map_err(CliError::input)?;
@@ -236,7 +266,9 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         },
         &start,
     );
+    let mut history = History::new(sim.species_names(), &start);
     write_state(&dir, &stem, 0, &sim, &start, &mut pvd)?;
+    write_pictures(&dir, &stem, 0, &sim, &start, args)?;
     let mut outcome = Outcome::Reached;
     let mut warned = false;
     let mut failure: Option<String> = None;
@@ -245,6 +277,7 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
             let state = rep.state.as_slice().unwrap_or(&[]);
             match Diagnostics::evaluate(&problem, &mesh, state, rep.time) {
                 Ok(d) => {
+                    history.push(rep.time, rep.dt, &d);
                     let drifts = csv.push(
                         StepFigures {
                             t: rep.time,
@@ -281,6 +314,8 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         let d = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), sim.time())
             .map_err(CliError::failure)?;
         write_state(&dir, &stem, k + 1, &sim, &d, &mut pvd)?;
+        write_pictures(&dir, &stem, k + 1, &sim, &d, args)?;
+        history.plot(&dir, &stem)?;
         if !quiet {
             let s = sim.stats();
             eprintln!(
@@ -306,6 +341,134 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
             Ok(EXIT_BLOWUP)
         }
         _ => Ok(0),
+    }
+}
+
+/// Pictures of the chosen fields for state number `k`.
+fn write_pictures(
+    dir: &Path,
+    stem: &str,
+    k: usize,
+    sim: &Simulation,
+    d: &Diagnostics,
+    args: &RunArgs,
+) -> Result<(), CliError> {
+    let state = sim.state();
+    for name in &args.pictures {
+        let values: &[f64] = match sim.species_names().iter().position(|s| s == name) {
+            Some(s) => state.row(s).to_slice().unwrap_or(&[]),
+            None => match d.fields.iter().find(|(n, _)| n == name) {
+                Some((_, v)) => v,
+                None => continue,
+            },
+        };
+        let options = SnapshotOptions {
+            title: snapshot_title(name, sim.time(), &args.time_unit),
+            ..SnapshotOptions::default()
+        };
+        let path = dir.join(format!("{stem}_{name}_{k:04}.png"));
+        write_field_png(&path, sim.mesh(), values, &options).map_err(CliError::failure)?;
+    }
+    Ok(())
+}
+
+/// Diagnostics over time, kept for the plots.
+struct History {
+    names: Vec<String>,
+    integral_names: Vec<String>,
+    t: Vec<f64>,
+    dt: Vec<(f64, f64)>,
+    integrals: Vec<Vec<(f64, f64)>>,
+    sups: Vec<Vec<(f64, f64)>>,
+    declared: Vec<Vec<(f64, f64)>>,
+}
+
+impl History {
+    fn new(names: &[String], start: &Diagnostics) -> Self {
+        let mut h = History {
+            names: names.to_vec(),
+            integral_names: start.integrals.iter().map(|i| i.name.clone()).collect(),
+            t: Vec::new(),
+            dt: Vec::new(),
+            integrals: vec![Vec::new(); names.len()],
+            sups: vec![Vec::new(); names.len()],
+            declared: vec![Vec::new(); start.integrals.len()],
+        };
+        h.push(start.time, 0.0, start);
+        h
+    }
+
+    fn push(&mut self, t: f64, dt: f64, d: &Diagnostics) {
+        self.t.push(t);
+        if dt > 0.0 {
+            self.dt.push((t, dt));
+        }
+        for (s, st) in d.species.iter().enumerate() {
+            self.integrals[s].push((t, st.integral));
+            self.sups[s].push((t, st.max.abs().max(st.min.abs())));
+        }
+        for (k, i) in d.integrals.iter().enumerate() {
+            self.declared[k].push((t, i.value));
+        }
+    }
+
+    /// Integrals, sup-norms and step sizes over time as three PNG plots.
+    fn plot(&self, dir: &Path, stem: &str) -> Result<(), CliError> {
+        let named = |names: &[String], data: &[Vec<(f64, f64)>], prefix: &str| -> Vec<Series> {
+            names
+                .iter()
+                .zip(data)
+                .map(|(n, p)| Series {
+                    name: format!("{prefix}{n}"),
+                    points: p.clone(),
+                })
+                .collect()
+        };
+        let mut integrals = named(&self.names, &self.integrals, "∫ ");
+        integrals.extend(named(&self.integral_names, &self.declared, "∫ "));
+        let plots = [
+            ("integrals", "integrals over the plate", integrals, false),
+            (
+                "sup",
+                "sup-norms",
+                self.names
+                    .iter()
+                    .zip(&self.sups)
+                    .map(|(n, p)| Series {
+                        name: format!("max |{n}|"),
+                        points: p.clone(),
+                    })
+                    .collect(),
+                true,
+            ),
+            (
+                "dt",
+                "step size",
+                vec![Series {
+                    name: "dt".into(),
+                    points: self.dt.clone(),
+                }],
+                true,
+            ),
+        ];
+        for (file, title, series, log_y) in plots {
+            if series.iter().all(|s| s.points.len() < 2) {
+                continue;
+            }
+            let options = PlotOptions {
+                log_y,
+                ..PlotOptions::default()
+            };
+            let path = dir.join(format!("{stem}_{file}.png"));
+            if let Err(e) = write_series_png(&path, title, "t", &series, &options) {
+                // A plot with nothing drawable (e.g. every sup-norm zero on a log axis) is
+                // skipped, not fatal; a disk failure is.
+                if matches!(e, agarium_core::output::OutputError::Io { .. }) {
+                    return Err(CliError::failure(e));
+                }
+            }
+        }
+        Ok(())
     }
 }
 

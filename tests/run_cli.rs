@@ -193,3 +193,64 @@ fn bad_options_exit_2_and_write_nothing() {
         assert!(!out.exists(), "{args:?} created the output folder");
     }
 }
+
+/// Pictures of chosen fields at every output time and plots of the diagnostics; the PNG
+/// files decode (reference: the `png` crate's decoder) with the size the tool draws.
+#[test]
+fn pictures_and_plots_are_written_and_decode() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("p");
+    let o = agarium(&[
+        "run",
+        &model_path("colony_4species.rhai"),
+        "--plate",
+        "circle:4",
+        "--size",
+        "0.4",
+        "--spot",
+        "0,0,0.1",
+        "--end",
+        "0.5",
+        "--every",
+        "0.25",
+        "--picture",
+        "u",
+        "--picture",
+        "all_cells",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    for f in [
+        "colony_4species_u_0000.png",
+        "colony_4species_u_0002.png",
+        "colony_4species_all_cells_0002.png",
+        "colony_4species_integrals.png",
+        "colony_4species_sup.png",
+        "colony_4species_dt.png",
+    ] {
+        let file = std::fs::File::open(out.join(f)).unwrap_or_else(|e| panic!("{f}: {e}"));
+        let decoder = png::Decoder::new(std::io::BufReader::new(file));
+        let reader = decoder.read_info().unwrap();
+        let info = reader.info();
+        assert!(info.width == 900, "{f}: width {}", info.width);
+        assert!(info.height >= 300, "{f}: height {}", info.height);
+    }
+    // An unknown field is refused before anything is written.
+    let never = dir.path().join("never");
+    let o = agarium(&[
+        "run",
+        &model_path("colony_4species.rhai"),
+        "--plate",
+        "circle:4",
+        "--end",
+        "0.5",
+        "--picture",
+        "nope",
+        "-o",
+        never.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("--picture nope"), "{}", stderr(&o));
+    assert!(!never.exists());
+}
