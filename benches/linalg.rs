@@ -207,6 +207,8 @@ fn main() {
     let smoke = !args.iter().any(|a| a == "--bench");
     let quick = smoke || args.iter().any(|a| a == "quick");
     let skip_largest = args.iter().any(|a| a == "no-1e6");
+    // `coupled`: only the 4-species system and its iterative rows (the time-step hot path).
+    let coupled_only = args.iter().any(|a| a == "coupled");
     let disk = PlateSpec {
         outer: Shape::Circle {
             centre: [0.0, 0.0],
@@ -256,14 +258,16 @@ fn main() {
             1,
         ));
         systems.push(("4 species".into(), coupled_matrix(&mesh, 10.0 * h * h), 4));
-        if label == "1e5" || smoke {
+        if coupled_only {
+            systems.retain(|s| s.2 > 1);
+        } else if label == "1e5" || smoke {
             determinism(&systems[2].1);
         }
         for (name, a, blocks) in &systems {
             let symmetric = name.starts_with("M+dtK");
             let mut cases: Vec<(&str, LinearParams, bool)> = vec![];
             // Direct factorizations of the coupled system at 1e6 nodes exceed this machine.
-            let direct_ok = a.rows() <= 1_500_000;
+            let direct_ok = a.rows() <= 1_500_000 && !coupled_only;
             if direct_ok {
                 // Pure LU, also for symmetric matrices (Cholesky has its own row).
                 let lu = LinearParams {
@@ -295,6 +299,14 @@ fn main() {
                         );
                         cases.push((label, iterative(k, p), true));
                     }
+                }
+                if *blocks > 1 {
+                    // Same pattern, new prepare: the refresh path of a Newton iteration.
+                    cases.push((
+                        "GMRES+blk-AMG reuse",
+                        iterative(Krylov::Gmres, Preconditioner::Amg),
+                        false,
+                    ));
                 }
             }
             let mut rows: Vec<(String, Result<Row, String>)> = Vec::new();
