@@ -25,6 +25,8 @@ enum Command {
     Check(check::CheckArgs),
     /// Integrate a model in time on a plate and write the states as .vtu files.
     Run(Box<run::RunArgs>),
+    /// Continue an interrupted run from its output folder.
+    Resume(run::ResumeArgs),
 }
 
 fn main() {
@@ -33,6 +35,7 @@ fn main() {
         Command::Mesh(args) => mesh::run(args).map(|()| 0),
         Command::Check(args) => check::run(args).map(|()| 0),
         Command::Run(args) => run::run(args),
+        Command::Resume(args) => run::resume(args),
     };
     match result {
         Ok(0) => {}

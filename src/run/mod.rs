@@ -1,22 +1,34 @@
-//! `agarium run`: mesh a plate, compile a model, integrate it in time, write one .vtu per
-//! output time and print a summary on stderr.
+//! `agarium run` and `agarium resume`: mesh a plate, compile a model, integrate it in time,
+//! write the output folder (states, series index, diagnostics, pictures, manifest,
+//! checkpoints) and print a summary on stderr.
 
-use std::path::{Path, PathBuf};
+mod manifest;
+mod outputs;
+mod progress;
+
+use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
 use std::time::Instant;
 
+use agarium_core::geometry::PlateSpec;
 use agarium_core::linalg::{LinearParams, Method};
-use agarium_core::mesh::{build_mesh, MeshError};
+use agarium_core::mesh::{build_mesh, MeshError, MeshOptions, QualityReport};
 use agarium_core::observe::{Diagnostics, DiagnosticsCsv, PvdIndex, StepFigures};
-use agarium_core::output::{
-    snapshot_title, write_field_png, write_series_png, write_vtu, Field, PlotOptions, Series,
-    SnapshotOptions,
+use agarium_core::problem::Problem;
+use agarium_core::time::{
+    Checkpoint, Control, Coupling, Outcome, Scheme, Simulation, StepperParams,
 };
-use agarium_core::time::{Control, Coupling, Outcome, Scheme, Simulation, StepperParams};
 use agarium_scripting::{Model, Overrides};
 
 use crate::error::CliError;
 use crate::plate_args::{MeshingArgs, PlateArgs};
+use manifest::{now_unix, sha256, Manifest, MeshFigures, CHECKPOINT};
+use outputs::{summary, write_pictures, write_state, History, CONSERVED_WARNING};
+use progress::Progress;
+
+/// Exit code of a run interrupted by Ctrl-C (128 + SIGINT, common practice).
+pub const EXIT_INTERRUPTED: i32 = 130;
 
 /// Exit code of a run stopped at a suspected blow-up (not an error: a finding).
 pub const EXIT_BLOWUP: i32 = 3;
@@ -84,6 +96,10 @@ pub struct RunArgs {
     /// Name of the model's time unit, for picture titles.
     #[arg(long, value_name = "NAME", default_value = "")]
     pub time_unit: String,
+    /// Also write a checkpoint every N accepted steps (one is always written at every output
+    /// time and on Ctrl-C); 0 for none in between.
+    #[arg(long, value_name = "N", default_value_t = 0)]
+    pub checkpoint_every: usize,
     /// Print nothing but errors.
     #[arg(short, long)]
     pub quiet: bool,
@@ -171,9 +187,63 @@ fn output_times(end: f64, every: f64) -> Vec<f64> {
         .collect()
 }
 
-/// Runs `agarium run`; returns the exit code for a completed run (0, or 3 at blow-up).
+/// Arguments of `agarium resume`.
+#[derive(clap::Args, Debug)]
+pub struct ResumeArgs {
+    /// Output folder of an interrupted run (holds run.json and checkpoint.bin).
+    pub folder: PathBuf,
+    /// Print nothing but errors.
+    #[arg(short, long)]
+    pub quiet: bool,
+}
+
+/// Everything a run needs, built from the command line or from a manifest.
+struct Session {
+    manifest: Manifest,
+    dir: PathBuf,
+    problem: Problem,
+    mesh: Arc<agarium_core::mesh::Mesh>,
+    times: Vec<f64>,
+    quiet: bool,
+}
+
+/// Set by the Ctrl-C handler; the step loop stops after the current step.
+static INTERRUPTED: AtomicBool = AtomicBool::new(false);
+
+fn install_interrupt_handler() {
+    // A second installation (tests calling twice in one process) is harmless to ignore.
+    let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, Ordering::SeqCst));
+}
+
+fn model_problem(file: &str, text: &str, set: &[String]) -> Result<(Model, Problem), CliError> {
+    let overrides = Overrides::parse(set).map_err(CliError::input)?;
+    let model = Model::load(file, text, &overrides).map_err(CliError::input)?;
+    let compiled = model.compile().map_err(CliError::input)?;
+    let problem = compiled.to_problem();
+    Ok((model, problem))
+}
+
+fn mesh_of(
+    spec: &PlateSpec,
+    options: &MeshOptions,
+) -> Result<(Arc<agarium_core::mesh::Mesh>, MeshFigures), CliError> {
+    let built = build_mesh(spec, options).map_err(|e| match e {
+        MeshError::Data(_) | MeshError::Triangulation(_) => CliError::failure(e),
+        other => CliError::input(other),
+    })?;
+    let q = QualityReport::of_built(&built);
+    let figures = MeshFigures {
+        nodes: built.mesh.num_nodes(),
+        triangles: built.mesh.triangles.len(),
+        min_angle_deg: q.min_angle_deg,
+        area: built.mesh.area(),
+    };
+    Ok((Arc::new(built.mesh), figures))
+}
+
+/// Runs `agarium run`; returns the exit code of a completed run (0, 3 at a suspected
+/// blow-up, 130 when interrupted).
 pub fn run(args: &RunArgs) -> Result<i32, CliError> {
-    let started = Instant::now();
     let end = positive("--end", args.end)?;
     let every = positive("--every", args.every.unwrap_or(end / 10.0))?;
     let times = output_times(end, every);
@@ -184,16 +254,16 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         )));
     }
     let params = args.stepper()?;
-    let overrides = Overrides::parse(&args.set).map_err(CliError::input)?;
     if !args.model.is_file() {
         return Err(CliError::input(format!(
             "{}: no such model file",
             args.model.display()
         )));
     }
-    let model = Model::load_file(&args.model, &overrides).map_err(CliError::input)?;
-    let compiled = model.compile().map_err(CliError::input)?;
-    let problem = compiled.to_problem();
+    let model_file = args.model.display().to_string();
+    let model_text = std::fs::read_to_string(&args.model)
+        .map_err(|e| CliError::input(format!("{model_file}: {e}")))?;
+    let (model, problem) = model_problem(&model_file, &model_text, &args.set)?;
     let known: Vec<&str> = problem
         .species
         .iter()
@@ -214,15 +284,10 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
             )));
         }
     }
-
     let spec = args.plate.spec()?;
     spec.check_numbers().map_err(CliError::input)?;
     let options = args.meshing.options(&spec)?;
-    let built = build_mesh(&spec, &options).map_err(|e| match e {
-        MeshError::Data(_) | MeshError::Triangulation(_) => CliError::failure(e),
-        other => CliError::input(other),
-    })?;
-    let mesh = Arc::new(built.mesh);
+    let (mesh, mesh_figures) = mesh_of(&spec, &options)?;
     let stem = args
         .model
         .file_stem()
@@ -233,103 +298,331 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("out").join(&stem));
+    let manifest = Manifest {
+        tool: format!("agarium {}", env!("CARGO_PKG_VERSION")),
+        command_line: std::env::args().collect(),
+        model_file,
+        model_sha256: sha256(&model_text),
+        model_text,
+        overrides: args.set.clone(),
+        parameters: model
+            .decl
+            .params
+            .iter()
+            .map(|p| (p.name.clone(), p.value))
+            .collect(),
+        plate: spec,
+        mesh: options,
+        mesh_figures,
+        solver: params,
+        end,
+        every,
+        pictures: args.pictures.clone(),
+        time_unit: args.time_unit.clone(),
+        stem,
+        checkpoint_steps: args.checkpoint_every,
+        threads: rayon_threads(),
+        started_unix: now_unix(),
+        finished_unix: None,
+        exit: "running".into(),
+        checkpoint_time: None,
+    };
+    let session = Session {
+        manifest,
+        dir,
+        problem,
+        mesh,
+        times,
+        quiet: args.quiet,
+    };
+    let sim = Simulation::new(
+        session.problem.clone(),
+        session.mesh.clone(),
+        session.manifest.solver.clone(),
+        0.0,
+    )
+    .map_err(|e| CliError::input(format!("{}: {e}", session.manifest.model_file)))?;
+    std::fs::create_dir_all(&session.dir).map_err(|e| {
+        CliError::failure(format!(
+            "{}: cannot create folder: {e}",
+            session.dir.display()
+        ))
+    })?;
+    execute(session, sim, false)
+}
 
-    let mut sim = Simulation::new(problem.clone(), mesh.clone(), params, 0.0)
-        .map_err(|e| CliError::input(format!("{}: {e}", args.model.display())))?;
-    std::fs::create_dir_all(&dir)
-        .map_err(|e| CliError::failure(format!("{}: cannot create folder: {e}", dir.display())))?;
-    let quiet = args.quiet;
+/// Runs `agarium resume`.
+pub fn resume(args: &ResumeArgs) -> Result<i32, CliError> {
+    let dir = args.folder.clone();
+    let manifest = Manifest::read(&dir)?;
+    if sha256(&manifest.model_text) != manifest.model_sha256 {
+        return Err(CliError::input(format!(
+            "{}: the model text does not match its recorded hash",
+            dir.join(manifest::MANIFEST).display()
+        )));
+    }
+    let checkpoint = Checkpoint::read(&dir.join(CHECKPOINT)).map_err(CliError::input)?;
+    let (_, problem) = model_problem(
+        &manifest.model_file,
+        &manifest.model_text,
+        &manifest.overrides,
+    )?;
+    let (mesh, figures) = mesh_of(&manifest.plate, &manifest.mesh)?;
+    if figures != manifest.mesh_figures {
+        return Err(CliError::failure(format!(
+            "the mesh rebuilt from {} differs from the run's ({} vs {} nodes)",
+            dir.join(manifest::MANIFEST).display(),
+            figures.nodes,
+            manifest.mesh_figures.nodes
+        )));
+    }
+    let threads = rayon_threads();
+    if threads != manifest.threads && !args.quiet {
+        eprintln!(
+            "note: the run used {} threads and this resume {threads}; the result may differ from an uninterrupted run in the last digits",
+            manifest.threads
+        );
+    }
+    let times = output_times(manifest.end, manifest.every);
+    let sim = Simulation::restore(
+        problem.clone(),
+        mesh.clone(),
+        manifest.solver.clone(),
+        checkpoint,
+    )
+    .map_err(CliError::input)?;
+    let session = Session {
+        manifest,
+        dir,
+        problem,
+        mesh,
+        times,
+        quiet: args.quiet,
+    };
+    execute(session, sim, true)
+}
+
+fn rayon_threads() -> usize {
+    std::env::var("RAYON_NUM_THREADS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .filter(|&n| n > 0)
+        .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()))
+}
+
+fn save_checkpoint(
+    session: &mut Session,
+    sim: &Simulation,
+    csv: &DiagnosticsCsv,
+) -> Result<(), CliError> {
+    // Order matters for a kill at any moment: the table first (it may hold rows past the
+    // checkpoint, which a resume drops), then the checkpoint, then the manifest naming it.
+    csv.save().map_err(CliError::failure)?;
+    sim.checkpoint()
+        .write(&session.dir.join(CHECKPOINT))
+        .map_err(CliError::failure)?;
+    session.manifest.checkpoint_time = Some(sim.time());
+    session.manifest.write(&session.dir)
+}
+
+/// The step loop shared by `run` and `resume`.
+fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i32, CliError> {
+    let started = Instant::now();
+    install_interrupt_handler();
+    let dir = session.dir.clone();
+    let stem = session.manifest.stem.clone();
+    let problem = session.problem.clone();
+    let mesh = session.mesh.clone();
+    let quiet = session.quiet;
+    // The start of the run (t = 0) is what conserved drifts are measured from; on a resume it
+    // is recomputed from the initial conditions, which are deterministic.
+    let start = initial_diagnostics(&session)?;
+    let csv_path = dir.join(format!("{stem}_diagnostics.csv"));
+    let mut csv = DiagnosticsCsv::new(csv_path, sim.species_names(), &start);
+    let mut pvd = PvdIndex::new();
+    let t_now = sim.time();
+    let mut history;
+    if resumed {
+        csv.reload_until(t_now).map_err(CliError::input)?;
+        pvd = PvdIndex::read(&dir.join(format!("{stem}.pvd"))).map_err(CliError::input)?;
+        pvd.truncate_after(t_now);
+        history = History::from_rows(sim.species_names(), &start, &csv.values());
+    } else {
+        csv.push(
+            StepFigures {
+                t: 0.0,
+                dt: 0.0,
+                newton: 0,
+                rejections: 0,
+            },
+            &start,
+        );
+        history = History::new(sim.species_names(), &start);
+        session.manifest.write(&dir)?;
+        write_state(&dir, &stem, 0, &sim, &start, &mut pvd)?;
+        let pics = session.manifest.pictures.clone();
+        write_pictures(
+            &dir,
+            &stem,
+            0,
+            &sim,
+            &start,
+            &pics,
+            &session.manifest.time_unit,
+        )?;
+        save_checkpoint(&mut session, &sim, &csv)?;
+    }
+    let end = session.manifest.end;
     if !quiet {
         eprintln!(
-            "{}: {} species on {} nodes, {} triangles; to t = {end} writing every {every} into {}",
-            args.model.display(),
+            "{}: {} species on {} nodes, {} triangles; {} t = {end} writing every {} into {}",
+            session.manifest.model_file,
             problem.n_species(),
             mesh.num_nodes(),
             mesh.triangles.len(),
+            if resumed {
+                format!("resuming at t = {t_now:.6e}, to")
+            } else {
+                "to".to_string()
+            },
+            session.manifest.every,
             dir.display()
         );
     }
-    let start = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), 0.0)
-        .map_err(CliError::failure)?;
-    let mut pvd = PvdIndex::new();
-    let mut csv = DiagnosticsCsv::new(
-        dir.join(format!("{stem}_diagnostics.csv")),
-        sim.species_names(),
-        &start,
-    );
-    csv.push(
-        StepFigures {
-            t: 0.0,
-            dt: 0.0,
-            newton: 0,
-            rejections: 0,
-        },
-        &start,
-    );
-    let mut history = History::new(sim.species_names(), &start);
-    write_state(&dir, &stem, 0, &sim, &start, &mut pvd)?;
-    write_pictures(&dir, &stem, 0, &sim, &start, args)?;
+    let mut progress = Progress::new(t_now, end, quiet);
     let mut outcome = Outcome::Reached;
     let mut warned = false;
     let mut failure: Option<String> = None;
+    let every_steps = session.manifest.checkpoint_steps;
+    let times = session.times.clone();
     for (k, &t) in times.iter().enumerate() {
-        let result = sim.advance_to(t, &mut |rep| {
-            let state = rep.state.as_slice().unwrap_or(&[]);
-            match Diagnostics::evaluate(&problem, &mesh, state, rep.time) {
-                Ok(d) => {
-                    history.push(rep.time, rep.dt, &d);
-                    let drifts = csv.push(
-                        StepFigures {
-                            t: rep.time,
-                            dt: rep.dt,
-                            newton: rep.newton_iterations,
-                            rejections: rep.rejections,
-                        },
-                        &d,
-                    );
-                    for (name, drift) in drifts {
-                        if drift > CONSERVED_WARNING && !warned {
-                            warned = true;
-                            eprintln!(
-                                "warning: `{name}` is declared conserved but drifted by {drift:.2e} (relative) by t = {:.6e}",
-                                rep.time
-                            );
-                        }
-                    }
-                    Control::Continue
-                }
-                Err(e) => {
-                    failure = Some(e.to_string());
-                    Control::Stop
-                }
-            }
-        });
-        // Whatever happened, the table so far is kept.
-        csv.save().map_err(CliError::failure)?;
-        if let Some(e) = failure.take() {
-            return Err(CliError::failure(format!("diagnostics: {e}")));
+        if t <= t_now {
+            continue;
         }
-        outcome =
-            result.map_err(|e| CliError::failure(format!("{}: {e}", args.model.display())))?;
+        // Advance to the output time; a cadence checkpoint stops the advance, is written
+        // outside the observer, and the advance continues.
+        loop {
+            let mut since_checkpoint = 0usize;
+            let mut wants_checkpoint = false;
+            let result = sim.advance_to(t, &mut |rep| {
+                let state = rep.state.as_slice().unwrap_or(&[]);
+                let d = match Diagnostics::evaluate(&problem, &mesh, state, rep.time) {
+                    Ok(d) => d,
+                    Err(e) => {
+                        failure = Some(e.to_string());
+                        return Control::Stop;
+                    }
+                };
+                history.push(rep.time, rep.dt, &d);
+                let drifts = csv.push(
+                    StepFigures {
+                        t: rep.time,
+                        dt: rep.dt,
+                        newton: rep.newton_iterations,
+                        rejections: rep.rejections,
+                    },
+                    &d,
+                );
+                for (name, drift) in drifts {
+                    if drift > CONSERVED_WARNING && !warned {
+                        warned = true;
+                        progress.println(&format!(
+                            "warning: `{name}` is declared conserved but drifted by {drift:.2e} (relative) by t = {:.6e}",
+                            rep.time
+                        ));
+                    }
+                }
+                progress.step(rep.time, rep.dt);
+                since_checkpoint += 1;
+                if INTERRUPTED.load(Ordering::SeqCst) {
+                    return Control::Stop;
+                }
+                if every_steps > 0 && since_checkpoint >= every_steps {
+                    wants_checkpoint = true;
+                    return Control::Stop;
+                }
+                Control::Continue
+            });
+            // Whatever happened, the table so far is kept.
+            csv.save().map_err(CliError::failure)?;
+            if let Some(e) = failure.take() {
+                progress.finish();
+                let err = CliError::failure(format!("diagnostics: {e}"));
+                return finish(&mut session, "error: diagnostics", Err(err));
+            }
+            outcome = match result {
+                Ok(o) => o,
+                Err(e) => {
+                    progress.finish();
+                    let msg = format!("{}: {e}", session.manifest.model_file);
+                    return finish(
+                        &mut session,
+                        &format!("error: {e}"),
+                        Err(CliError::failure(msg)),
+                    );
+                }
+            };
+            if outcome == Outcome::Stopped
+                && wants_checkpoint
+                && !INTERRUPTED.load(Ordering::SeqCst)
+            {
+                save_checkpoint(&mut session, &sim, &csv)?;
+                continue;
+            }
+            break;
+        }
+        if INTERRUPTED.load(Ordering::SeqCst) && outcome == Outcome::Stopped {
+            progress.finish();
+            let d = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), sim.time())
+                .map_err(CliError::failure)?;
+            let mut scratch = PvdIndex::new();
+            write_state(
+                &dir,
+                &format!("{stem}_interrupted"),
+                0,
+                &sim,
+                &d,
+                &mut scratch,
+            )?;
+            std::fs::remove_file(dir.join(format!("{stem}_interrupted.pvd"))).ok();
+            save_checkpoint(&mut session, &sim, &csv)?;
+            eprintln!(
+                "interrupted at t = {:.6e}: state, checkpoint and manifest written; continue with `agarium resume {}`",
+                sim.time(),
+                dir.display()
+            );
+            return finish(&mut session, "interrupted", Ok(EXIT_INTERRUPTED));
+        }
         let d = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), sim.time())
             .map_err(CliError::failure)?;
         write_state(&dir, &stem, k + 1, &sim, &d, &mut pvd)?;
-        write_pictures(&dir, &stem, k + 1, &sim, &d, args)?;
+        let pics = session.manifest.pictures.clone();
+        write_pictures(
+            &dir,
+            &stem,
+            k + 1,
+            &sim,
+            &d,
+            &pics,
+            &session.manifest.time_unit,
+        )?;
         history.plot(&dir, &stem)?;
+        save_checkpoint(&mut session, &sim, &csv)?;
         if !quiet {
             let s = sim.stats();
-            eprintln!(
+            progress.println(&format!(
                 "  t = {:<12.6e} steps {:>6}  rejected {:>4}  dt {:.3e}",
                 sim.time(),
                 s.steps,
                 s.rejected,
                 sim.next_dt()
-            );
+            ));
         }
         if outcome != Outcome::Reached {
             break;
         }
     }
+    progress.finish();
     let last = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), sim.time())
         .map_err(CliError::failure)?;
     if !quiet {
@@ -338,204 +631,35 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     match outcome {
         Outcome::BlowUp(report) => {
             eprintln!("{}", report.describe());
-            Ok(EXIT_BLOWUP)
+            finish(&mut session, "blow-up", Ok(EXIT_BLOWUP))
         }
-        _ => Ok(0),
+        _ => finish(&mut session, "reached", Ok(0)),
     }
 }
 
-/// Pictures of the chosen fields for state number `k`.
-fn write_pictures(
-    dir: &Path,
-    stem: &str,
-    k: usize,
-    sim: &Simulation,
-    d: &Diagnostics,
-    args: &RunArgs,
-) -> Result<(), CliError> {
-    let state = sim.state();
-    for name in &args.pictures {
-        let values: &[f64] = match sim.species_names().iter().position(|s| s == name) {
-            Some(s) => state.row(s).to_slice().unwrap_or(&[]),
-            None => match d.fields.iter().find(|(n, _)| n == name) {
-                Some((_, v)) => v,
-                None => continue,
-            },
-        };
-        let options = SnapshotOptions {
-            title: snapshot_title(name, sim.time(), &args.time_unit),
-            ..SnapshotOptions::default()
-        };
-        let path = dir.join(format!("{stem}_{name}_{k:04}.png"));
-        write_field_png(&path, sim.mesh(), values, &options).map_err(CliError::failure)?;
-    }
-    Ok(())
-}
-
-/// Diagnostics over time, kept for the plots.
-struct History {
-    names: Vec<String>,
-    integral_names: Vec<String>,
-    t: Vec<f64>,
-    dt: Vec<(f64, f64)>,
-    integrals: Vec<Vec<(f64, f64)>>,
-    sups: Vec<Vec<(f64, f64)>>,
-    declared: Vec<Vec<(f64, f64)>>,
-}
-
-impl History {
-    fn new(names: &[String], start: &Diagnostics) -> Self {
-        let mut h = History {
-            names: names.to_vec(),
-            integral_names: start.integrals.iter().map(|i| i.name.clone()).collect(),
-            t: Vec::new(),
-            dt: Vec::new(),
-            integrals: vec![Vec::new(); names.len()],
-            sups: vec![Vec::new(); names.len()],
-            declared: vec![Vec::new(); start.integrals.len()],
-        };
-        h.push(start.time, 0.0, start);
-        h
-    }
-
-    fn push(&mut self, t: f64, dt: f64, d: &Diagnostics) {
-        self.t.push(t);
-        if dt > 0.0 {
-            self.dt.push((t, dt));
-        }
-        for (s, st) in d.species.iter().enumerate() {
-            self.integrals[s].push((t, st.integral));
-            self.sups[s].push((t, st.max.abs().max(st.min.abs())));
-        }
-        for (k, i) in d.integrals.iter().enumerate() {
-            self.declared[k].push((t, i.value));
-        }
-    }
-
-    /// Integrals, sup-norms and step sizes over time as three PNG plots.
-    fn plot(&self, dir: &Path, stem: &str) -> Result<(), CliError> {
-        let named = |names: &[String], data: &[Vec<(f64, f64)>], prefix: &str| -> Vec<Series> {
-            names
-                .iter()
-                .zip(data)
-                .map(|(n, p)| Series {
-                    name: format!("{prefix}{n}"),
-                    points: p.clone(),
-                })
-                .collect()
-        };
-        let mut integrals = named(&self.names, &self.integrals, "∫ ");
-        integrals.extend(named(&self.integral_names, &self.declared, "∫ "));
-        let plots = [
-            ("integrals", "integrals over the plate", integrals, false),
-            (
-                "sup",
-                "sup-norms",
-                self.names
-                    .iter()
-                    .zip(&self.sups)
-                    .map(|(n, p)| Series {
-                        name: format!("max |{n}|"),
-                        points: p.clone(),
-                    })
-                    .collect(),
-                true,
-            ),
-            (
-                "dt",
-                "step size",
-                vec![Series {
-                    name: "dt".into(),
-                    points: self.dt.clone(),
-                }],
-                true,
-            ),
-        ];
-        for (file, title, series, log_y) in plots {
-            if series.iter().all(|s| s.points.len() < 2) {
-                continue;
-            }
-            let options = PlotOptions {
-                log_y,
-                ..PlotOptions::default()
-            };
-            let path = dir.join(format!("{stem}_{file}.png"));
-            if let Err(e) = write_series_png(&path, title, "t", &series, &options) {
-                // A plot with nothing drawable (e.g. every sup-norm zero on a log axis) is
-                // skipped, not fatal; a disk failure is.
-                if matches!(e, agarium_core::output::OutputError::Io { .. }) {
-                    return Err(CliError::failure(e));
-                }
-            }
-        }
-        Ok(())
-    }
-}
-
-/// Relative drift of a conserved integral above which the run warns (far above round-off and
-/// the iterative solvers' tolerance, far below anything that changes a picture).
-const CONSERVED_WARNING: f64 = 1e-8;
-
-/// Writes state number `k` and adds it to the series index.
-fn write_state(
-    dir: &Path,
-    stem: &str,
-    k: usize,
-    sim: &Simulation,
-    d: &Diagnostics,
-    pvd: &mut PvdIndex,
-) -> Result<(), CliError> {
-    let state = sim.state();
-    let names = sim.species_names();
-    let mut fields: Vec<Field> = names
-        .iter()
-        .enumerate()
-        .map(|(s, name)| Field {
-            name,
-            values: state.row(s).to_slice().unwrap_or(&[]),
-        })
-        .collect();
-    for (name, values) in &d.fields {
-        fields.push(Field { name, values });
-    }
-    let name = format!("{stem}_{k:04}.vtu");
-    write_vtu(&dir.join(&name), sim.mesh(), &fields, &[]).map_err(CliError::failure)?;
-    pvd.push(sim.time(), &name);
-    pvd.write(&dir.join(format!("{stem}.pvd")))
+/// Diagnostics of the initial state (t = 0) of the session's run.
+fn initial_diagnostics(session: &Session) -> Result<Diagnostics, CliError> {
+    let sim = Simulation::new(
+        session.problem.clone(),
+        session.mesh.clone(),
+        session.manifest.solver.clone(),
+        0.0,
+    )
+    .map_err(|e| CliError::input(format!("{}: {e}", session.manifest.model_file)))?;
+    Diagnostics::evaluate(&session.problem, &session.mesh, sim.state_slice(), 0.0)
         .map_err(CliError::failure)
 }
 
-fn summary(sim: &Simulation, start: &Diagnostics, last: &Diagnostics, seconds: f64) {
-    let s = sim.stats();
-    eprintln!(
-        "reached t = {:.6e} in {} steps ({} rejected), {} Newton iterations, {} Jacobians, {} linear solves, {:.2} s",
-        sim.time(),
-        s.steps,
-        s.rejected,
-        s.newton_iterations,
-        s.jacobians,
-        s.linear_solves,
-        seconds
-    );
-    eprintln!(
-        "  {:<20} {:>14} {:>14} {:>14}",
-        "species", "integral", "min", "max"
-    );
-    for (name, st) in sim.species_names().iter().zip(&last.species) {
-        eprintln!(
-            "  {:<20} {:>14.6e} {:>14.6e} {:>14.6e}",
-            name, st.integral, st.min, st.max
-        );
+/// Records how the run ended in the manifest and passes `result` on.
+fn finish(
+    session: &mut Session,
+    exit: &str,
+    result: Result<i32, CliError>,
+) -> Result<i32, CliError> {
+    session.manifest.exit = exit.to_string();
+    session.manifest.finished_unix = Some(now_unix());
+    if let Err(e) = session.manifest.write(&session.dir) {
+        eprintln!("warning: {}", e.message);
     }
-    for (now, then) in last.integrals.iter().zip(&start.integrals) {
-        let drift = if now.conserved {
-            format!(
-                "  (conserved: relative drift {:.2e})",
-                (now.value - then.value).abs() / then.value.abs().max(f64::MIN_POSITIVE)
-            )
-        } else {
-            String::new()
-        };
-        eprintln!("  ∫ {:<18} {:>14.6e}{drift}", now.name, now.value);
-    }
+    result
 }

@@ -210,6 +210,14 @@ impl DiagnosticsCsv {
         write_text(&self.path, &text)
     }
 
+    /// The rows as numbers (columns as in the header).
+    pub fn values(&self) -> Vec<Vec<f64>> {
+        self.rows
+            .iter()
+            .map(|(_, r)| r.split(',').filter_map(|x| x.parse().ok()).collect())
+            .collect()
+    }
+
     /// Reloads the rows of an earlier save up to time `t` (to resume a run); the header
     /// must match this table's.
     pub fn reload_until(&mut self, t: f64) -> Result<(), OutputError> {

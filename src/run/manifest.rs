@@ -1,0 +1,125 @@
+//! The run manifest (`run.json` in the output folder): what was run, with what, and how it
+//! ended. It holds everything `agarium resume` needs to rebuild the run: the model's text
+//! (so editing the file afterwards changes nothing), the overrides, the plate, the meshing
+//! options and the solver settings.
+
+use std::path::Path;
+
+use agarium_core::geometry::PlateSpec;
+use agarium_core::mesh::MeshOptions;
+use agarium_core::output::write_atomically;
+use agarium_core::time::StepperParams;
+use serde::{Deserialize, Serialize};
+use sha2::{Digest, Sha256};
+
+use crate::error::CliError;
+
+/// File name of the manifest in the output folder.
+pub const MANIFEST: &str = "run.json";
+/// File name of the checkpoint in the output folder.
+pub const CHECKPOINT: &str = "checkpoint.bin";
+
+/// Mesh figures recorded in the manifest.
+#[derive(Clone, Debug, Serialize, Deserialize, PartialEq)]
+pub struct MeshFigures {
+    /// Nodes.
+    pub nodes: usize,
+    /// Triangles.
+    pub triangles: usize,
+    /// Smallest angle in degrees.
+    pub min_angle_deg: f64,
+    /// Plate area.
+    pub area: f64,
+}
+
+/// Everything about one run.
+#[derive(Clone, Debug, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Manifest {
+    /// Program and version.
+    pub tool: String,
+    /// The command line as given.
+    pub command_line: Vec<String>,
+    /// Model file as named on the command line.
+    pub model_file: String,
+    /// Its text when the run started.
+    pub model_text: String,
+    /// SHA-256 of that text (hex).
+    pub model_sha256: String,
+    /// `--set` overrides, as given.
+    pub overrides: Vec<String>,
+    /// Parameters after the overrides: (name, value).
+    pub parameters: Vec<(String, f64)>,
+    /// The plate.
+    pub plate: PlateSpec,
+    /// Meshing options.
+    pub mesh: MeshOptions,
+    /// Mesh figures.
+    pub mesh_figures: MeshFigures,
+    /// Solver settings.
+    pub solver: StepperParams,
+    /// End time.
+    pub end: f64,
+    /// Output interval.
+    pub every: f64,
+    /// Fields drawn at every output time.
+    pub pictures: Vec<String>,
+    /// Time unit for titles.
+    pub time_unit: String,
+    /// File-name stem of the outputs.
+    pub stem: String,
+    /// Checkpoint every this many accepted steps (0: only at output times).
+    pub checkpoint_steps: usize,
+    /// Worker threads the run used (results are reproducible bit for bit for the same count).
+    pub threads: usize,
+    /// Start, seconds since the Unix epoch.
+    pub started_unix: u64,
+    /// End, seconds since the Unix epoch, once it ended.
+    pub finished_unix: Option<u64>,
+    /// `running`, `reached`, `blow-up`, `interrupted` or `error: …`.
+    pub exit: String,
+    /// Time of the last checkpoint.
+    pub checkpoint_time: Option<f64>,
+}
+
+/// Seconds since the Unix epoch.
+pub fn now_unix() -> u64 {
+    std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map(|d| d.as_secs())
+        .unwrap_or(0)
+}
+
+/// Hex SHA-256 of `text`.
+pub fn sha256(text: &str) -> String {
+    let digest = Sha256::digest(text.as_bytes());
+    digest.iter().map(|b| format!("{b:02x}")).collect()
+}
+
+impl Manifest {
+    /// Writes the manifest atomically.
+    pub fn write(&self, dir: &Path) -> Result<(), CliError> {
+        let path = dir.join(MANIFEST);
+        let text = serde_json::to_string_pretty(self).map_err(CliError::failure)?;
+        write_atomically(&path, |w| {
+            w.write_all(text.as_bytes())
+                .map_err(|e| agarium_core::output::OutputError::Io {
+                    path: path.clone(),
+                    reason: e.to_string(),
+                })
+        })
+        .map_err(CliError::failure)
+    }
+
+    /// Reads the manifest of a run folder.
+    pub fn read(dir: &Path) -> Result<Self, CliError> {
+        let path = dir.join(MANIFEST);
+        let text = std::fs::read_to_string(&path).map_err(|e| {
+            CliError::input(format!(
+                "{}: cannot read the run manifest: {e} (is this a run's output folder?)",
+                path.display()
+            ))
+        })?;
+        serde_json::from_str(&text).map_err(|e| CliError::input(format!("{}: {e}", path.display())))
+    }
+}
