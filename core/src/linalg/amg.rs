@@ -16,24 +16,32 @@ use super::direct::DirectLu;
 use super::ops::Csr;
 use super::precond::Apply;
 use super::LinalgError;
-use sprs::CsMat;
 
 /// Strength threshold θ (0.08 is the customary smoothed-aggregation value; value from memory).
 const THETA: f64 = 0.08;
 /// Levels with at most this many unknowns are solved directly.
 const COARSE_SIZE: usize = 400;
 const MAX_LEVELS: usize = 20;
+const NONE: usize = usize::MAX;
 
+/// One level above the coarsest. The matrix of level 0 is not stored (it is the caller's,
+/// passed to [`Amg::apply`] and [`Amg::refresh`]); level k > 0 holds the Galerkin product of
+/// level k − 1.
 struct Level {
     a: Csr,
     /// Aggregate of each node (kept for refresh).
     aggregates: Vec<usize>,
+    /// Smoothed prolongator; its pattern is fixed by A's pattern and the aggregates, so
+    /// refresh rewrites only its values. Restriction is Pᵀ applied by scatter (no copy).
     p: Csr,
-    r: Csr,
-    /// Unknowns, right-hand side and residual of this level's cycle.
+    /// Pᵀ as an index: for coarse row I, `(fine row, position in p.val)` pairs.
+    tptr: Vec<usize>,
+    tidx: Vec<(usize, usize)>,
+    /// Unknowns, right-hand side, residual of this level's cycle, and its diagonal.
     x: Vec<f64>,
     b: Vec<f64>,
     res: Vec<f64>,
+    diag: Vec<f64>,
 }
 
 enum Coarse {
@@ -45,10 +53,15 @@ enum Coarse {
 /// A multigrid hierarchy for one matrix pattern.
 pub(crate) struct Amg {
     levels: Vec<Level>,
+    /// Coarsest matrix; when there are no levels, unused (the fine matrix is the caller's).
     coarse_a: Csr,
     coarse: Coarse,
     coarse_x: Vec<f64>,
     coarse_b: Vec<f64>,
+    /// Rows and entries of the fine matrix built for (a cheap guard for refresh).
+    fine_shape: (usize, usize),
+    /// Dense per-coarse-column scratch (positions) shared by the set-up products.
+    mark: Vec<usize>,
 }
 
 /// Greedy aggregation on the strength graph (common practice): whole neighbourhoods first,
@@ -106,58 +119,189 @@ fn aggregate(a: &Csr) -> (Vec<usize>, usize) {
     (agg, count)
 }
 
-/// Piecewise constant prolongator, columns scaled to unit length.
-fn tentative(agg: &[usize], nc: usize) -> CsMat<f64> {
-    let mut size = vec![0usize; nc];
-    for &g in agg {
-        size[g] += 1;
+/// Pattern of the smoothed prolongator (I − ω D⁻¹A) P₀: row i has the aggregates of i and of
+/// its neighbours, sorted.
+fn prolongator_pattern(a: &Csr, agg: &[usize], nc: usize) -> Csr {
+    let mut p = Csr::empty();
+    p.n = a.n;
+    p.ncols = nc;
+    p.ptr.reserve(a.n + 1);
+    p.ptr.push(0);
+    for i in 0..a.n {
+        let start = p.col.len();
+        p.col.push(agg[i]);
+        p.col.extend(a.row(i).0.iter().map(|&k| agg[k]));
+        p.col[start..].sort_unstable();
+        let mut w = start;
+        for r in start..p.col.len() {
+            if r == start || p.col[r] != p.col[w - 1] {
+                p.col[w] = p.col[r];
+                w += 1;
+            }
+        }
+        p.col.truncate(w);
+        p.ptr.push(w);
     }
-    let n = agg.len();
-    CsMat::new(
-        (n, nc),
-        (0..=n).collect(),
-        agg.to_vec(),
-        agg.iter().map(|&g| 1.0 / (size[g] as f64).sqrt()).collect(),
-    )
+    p.val = vec![0.0; p.col.len()];
+    p
 }
 
-/// Smoothed prolongator, restriction and coarse matrix for fine matrix `a`.
-fn transfer(a: &Csr, agg: &[usize], nc: usize) -> Result<(Csr, Csr, Csr), LinalgError> {
-    let d = a.diagonal();
-    if let Some(index) = d.iter().position(|v| *v == 0.0) {
-        return Err(LinalgError::Singular { index });
+/// Pᵀ as an index over P's storage.
+fn transpose_index(p: &Csr) -> (Vec<usize>, Vec<(usize, usize)>) {
+    let mut tptr = vec![0usize; p.ncols + 1];
+    for &j in &p.col {
+        tptr[j + 1] += 1;
     }
-    // Gershgorin bound of ρ(D⁻¹A).
+    for j in 0..p.ncols {
+        tptr[j + 1] += tptr[j];
+    }
+    let mut fill = tptr.clone();
+    let mut tidx = vec![(0, 0); p.col.len()];
+    for i in 0..p.n {
+        for q in p.ptr[i]..p.ptr[i + 1] {
+            let j = p.col[q];
+            tidx[fill[j]] = (i, q);
+            fill[j] += 1;
+        }
+    }
+    (tptr, tidx)
+}
+
+/// Pattern of the Galerkin product Pᵀ A P (rows sorted).
+fn galerkin_pattern(
+    a: &Csr,
+    p: &Csr,
+    tptr: &[usize],
+    tidx: &[(usize, usize)],
+    mark: &mut [usize],
+) -> Csr {
+    let nc = p.ncols;
+    let mut ac = Csr::empty();
+    ac.n = nc;
+    ac.ncols = nc;
+    ac.ptr.reserve(nc + 1);
+    ac.ptr.push(0);
+    for big_i in 0..nc {
+        let start = ac.col.len();
+        for &(i, _) in &tidx[tptr[big_i]..tptr[big_i + 1]] {
+            for &k in a.row(i).0 {
+                for &j in p.row(k).0 {
+                    if mark[j] != big_i {
+                        mark[j] = big_i;
+                        ac.col.push(j);
+                    }
+                }
+            }
+        }
+        ac.col[start..].sort_unstable();
+        ac.ptr.push(ac.col.len());
+    }
+    mark.fill(NONE);
+    ac.val = vec![0.0; ac.col.len()];
+    ac
+}
+
+/// Values of the smoothed prolongator P = (I − ω D⁻¹A) P₀ into `p`'s fixed pattern, with
+/// ω = 4/3 over a Gershgorin bound of ρ(D⁻¹A). `diag` receives A's diagonal.
+fn prolongator_values(
+    a: &Csr,
+    agg: &[usize],
+    p: &mut Csr,
+    diag: &mut [f64],
+    size: &mut [f64],
+    mark: &mut [usize],
+) -> Result<(), LinalgError> {
+    for (i, d) in diag.iter_mut().enumerate() {
+        let (c, v) = a.row(i);
+        *d = c.binary_search(&i).map(|k| v[k]).unwrap_or(0.0);
+        if *d == 0.0 {
+            return Err(LinalgError::Singular { index: i });
+        }
+    }
     let rho = (0..a.n)
-        .map(|i| a.row(i).1.iter().map(|v| v.abs()).sum::<f64>() / d[i].abs())
+        .map(|i| a.row(i).1.iter().map(|v| v.abs()).sum::<f64>() / diag[i].abs())
         .fold(0.0f64, f64::max);
     let omega = 4.0 / 3.0 / rho;
-    let a_sp = a.to_sprs();
-    let p0 = tentative(agg, nc);
-    let ap = &a_sp * &p0;
-    let mut ap = Csr::from_sprs(&ap);
-    for (i, di) in d.iter().enumerate() {
-        let s = omega / di;
-        let r = ap.ptr[i]..ap.ptr[i + 1];
-        ap.val[r].iter_mut().for_each(|v| *v *= s);
+    // P₀: piecewise constant, columns scaled to unit length.
+    size.fill(0.0);
+    for &g in agg {
+        size[g] += 1.0;
     }
-    let p = &p0 - &ap.to_sprs();
-    let r = p.transpose_view().to_csr();
-    let ac = &r * &(&a_sp * &p);
-    Ok((Csr::from_sprs(&p), Csr::from_sprs(&r), Csr::from_sprs(&ac)))
+    for s in size.iter_mut() {
+        *s = 1.0 / s.sqrt();
+    }
+    for i in 0..a.n {
+        let (lo, hi) = (p.ptr[i], p.ptr[i + 1]);
+        for q in lo..hi {
+            mark[p.col[q]] = q;
+            p.val[q] = 0.0;
+        }
+        let (c, v) = a.row(i);
+        for (&k, &aik) in c.iter().zip(v) {
+            let g = agg[k];
+            p.val[mark[g]] += aik * size[g];
+        }
+        let scale = omega / diag[i];
+        for q in lo..hi {
+            p.val[q] = -(p.val[q] * scale);
+            mark[p.col[q]] = NONE;
+        }
+        let own = p.ptr[i] + p.col[lo..hi].partition_point(|&j| j < agg[i]);
+        p.val[own] += size[agg[i]];
+    }
+    Ok(())
 }
 
+/// Values of Pᵀ A P into `ac`'s fixed pattern.
+fn galerkin_values(
+    a: &Csr,
+    p: &Csr,
+    tptr: &[usize],
+    tidx: &[(usize, usize)],
+    ac: &mut Csr,
+    mark: &mut [usize],
+) {
+    for big_i in 0..ac.n {
+        let (lo, hi) = (ac.ptr[big_i], ac.ptr[big_i + 1]);
+        for q in lo..hi {
+            mark[ac.col[q]] = q;
+            ac.val[q] = 0.0;
+        }
+        for &(i, pq) in &tidx[tptr[big_i]..tptr[big_i + 1]] {
+            let w = p.val[pq];
+            let (c, v) = a.row(i);
+            for (&k, &aik) in c.iter().zip(v) {
+                let u = w * aik;
+                let (pc, pv) = p.row(k);
+                for (&j, &pkj) in pc.iter().zip(pv) {
+                    ac.val[mark[j]] += u * pkj;
+                }
+            }
+        }
+        for &j in &ac.col[lo..hi] {
+            mark[j] = NONE;
+        }
+    }
+}
+
+/// One Gauss–Seidel sweep. The row is split at its diagonal (position known from the sorted
+/// columns), so the inner loops have no branch; subtraction order is column order.
 fn gauss_seidel(a: &Csr, b: &[f64], x: &mut [f64], forward: bool) {
     let mut sweep = |i: usize| {
         let (c, v) = a.row(i);
+        let d = c.partition_point(|&j| j < i);
         let mut s = b[i];
         let mut diag = 0.0;
-        for (&j, &aij) in c.iter().zip(v) {
-            if j == i {
-                diag = aij;
-            } else {
-                s -= aij * x[j];
-            }
+        for (&j, &aij) in c[..d].iter().zip(&v[..d]) {
+            s -= aij * x[j];
+        }
+        let mut rest = d;
+        if c.get(d) == Some(&i) {
+            diag = v[d];
+            rest = d + 1;
+        }
+        for (&j, &aij) in c[rest..].iter().zip(&v[rest..]) {
+            s -= aij * x[j];
         }
         x[i] = s / diag;
     };
@@ -171,36 +315,70 @@ fn gauss_seidel(a: &Csr, b: &[f64], x: &mut [f64], forward: bool) {
 impl Amg {
     /// Builds the hierarchy for `a`.
     pub(crate) fn new(a: &Csr) -> Result<Self, LinalgError> {
-        let mut levels = Vec::new();
-        let mut current = a.clone();
-        while current.n > COARSE_SIZE && levels.len() + 1 < MAX_LEVELS {
-            let (aggregates, nc) = aggregate(&current);
+        let mut levels: Vec<Level> = Vec::new();
+        let mut mark: Vec<usize> = Vec::new();
+        let mut size: Vec<f64> = Vec::new();
+        // The matrix of the level being coarsened: the caller's, then each Galerkin product.
+        let mut next: Option<Csr> = None;
+        loop {
+            let current = next.as_ref().unwrap_or(a);
+            if current.n <= COARSE_SIZE || levels.len() + 1 >= MAX_LEVELS {
+                break;
+            }
+            let (aggregates, nc) = aggregate(current);
             // Too little coarsening (e.g. a mass-dominated matrix has no strong couplings):
             // stop here; smoothing alone is effective for such a level.
             if nc * 10 > current.n * 8 {
                 break;
             }
-            let (p, r, ac) = transfer(&current, &aggregates, nc)?;
             let n = current.n;
+            if mark.len() < nc {
+                mark.resize(nc, NONE);
+            }
+            size.resize(nc, 0.0);
+            let mut p = prolongator_pattern(current, &aggregates, nc);
+            let mut diag = vec![0.0; n];
+            prolongator_values(
+                current,
+                &aggregates,
+                &mut p,
+                &mut diag,
+                &mut size,
+                &mut mark,
+            )?;
+            let (tptr, tidx) = transpose_index(&p);
+            let mut ac = galerkin_pattern(current, &p, &tptr, &tidx, &mut mark);
+            galerkin_values(current, &p, &tptr, &tidx, &mut ac, &mut mark);
+            let a_level = next.take().unwrap_or_else(Csr::empty);
             levels.push(Level {
-                a: current,
+                a: a_level,
                 aggregates,
                 p,
-                r,
+                tptr,
+                tidx,
                 x: vec![0.0; n],
                 b: vec![0.0; n],
                 res: vec![0.0; n],
+                diag,
             });
-            current = ac;
+            next = Some(ac);
         }
-        let coarse = Self::factor_coarse(&current, None);
-        let nc = current.n;
+        let (coarse_a, coarse) = match next {
+            Some(c) => {
+                let f = Self::factor_coarse(&c, None);
+                (c, f)
+            }
+            None => (Csr::empty(), Self::factor_coarse(a, None)),
+        };
+        let nc = if levels.is_empty() { a.n } else { coarse_a.n };
         Ok(Self {
             levels,
-            coarse_a: current,
+            coarse_a,
             coarse,
             coarse_x: vec![0.0; nc],
             coarse_b: vec![0.0; nc],
+            fine_shape: (a.n, a.col.len()),
+            mark,
         })
     }
 
@@ -225,33 +403,52 @@ impl Amg {
     /// Unknowns per level, finest first.
     #[cfg(test)]
     pub(crate) fn level_sizes(&self) -> Vec<usize> {
-        let mut v: Vec<usize> = self.levels.iter().map(|l| l.a.n).collect();
-        v.push(self.coarse_a.n);
+        let mut v: Vec<usize> = self.levels.iter().map(|l| l.x.len()).collect();
+        v.push(self.coarse_x.len());
         v
     }
 
-    /// New values on the pattern the hierarchy was built for: the aggregates are kept.
+    /// New values on the pattern the hierarchy was built for (the caller guarantees the
+    /// pattern; rows and entries are checked): the aggregates and every level's pattern are
+    /// kept, and P, the Galerkin products and the coarse LU are recomputed in place.
     pub(crate) fn refresh(&mut self, a: &Csr) -> Result<(), LinalgError> {
-        let mut current = a.clone();
-        for level in &mut self.levels {
-            if current.ptr != level.a.ptr || current.col != level.a.col {
-                *self = Self::new(a)?;
-                return Ok(());
-            }
-            let nc = level.r.n;
-            let (p, r, ac) = transfer(&current, &level.aggregates, nc)?;
-            level.a = current;
-            level.p = p;
-            level.r = r;
-            current = ac;
+        if self.fine_shape != (a.n, a.col.len()) {
+            *self = Self::new(a)?;
+            return Ok(());
+        }
+        let mut size = vec![0.0; self.mark.len()];
+        let nl = self.levels.len();
+        for k in 0..nl {
+            let (fine, rest) = self.levels.split_at_mut(k + 1);
+            let Level {
+                a: own,
+                aggregates,
+                p,
+                tptr,
+                tidx,
+                diag,
+                ..
+            } = &mut fine[k];
+            let current: &Csr = if k == 0 { a } else { own };
+            let out = match rest.first_mut() {
+                Some(next) => &mut next.a,
+                None => &mut self.coarse_a,
+            };
+            prolongator_values(current, aggregates, p, diag, &mut size, &mut self.mark)?;
+            galerkin_values(current, p, tptr, tidx, out, &mut self.mark);
         }
         let old = std::mem::replace(&mut self.coarse, Coarse::Smooth);
-        self.coarse = Self::factor_coarse(&current, Some(old));
-        self.coarse_a = current;
+        self.coarse = if nl == 0 {
+            Self::factor_coarse(a, Some(old))
+        } else {
+            Self::factor_coarse(&self.coarse_a, Some(old))
+        };
         Ok(())
     }
 
-    fn solve_coarse(&mut self) {
+    /// Coarsest solve; `fine` is the caller's matrix, the coarsest one when there are no
+    /// levels.
+    fn solve_coarse(&mut self, fine: &Csr) {
         match &mut self.coarse {
             Coarse::Lu(lu) => {
                 self.coarse_x.copy_from_slice(&self.coarse_b);
@@ -260,10 +457,15 @@ impl Amg {
                 }
             }
             Coarse::Smooth => {
+                let a = if self.levels.is_empty() {
+                    fine
+                } else {
+                    &self.coarse_a
+                };
                 self.coarse_x.fill(0.0);
                 for _ in 0..2 {
-                    gauss_seidel(&self.coarse_a, &self.coarse_b, &mut self.coarse_x, true);
-                    gauss_seidel(&self.coarse_a, &self.coarse_b, &mut self.coarse_x, false);
+                    gauss_seidel(a, &self.coarse_b, &mut self.coarse_x, true);
+                    gauss_seidel(a, &self.coarse_b, &mut self.coarse_x, false);
                 }
             }
         }
@@ -277,14 +479,25 @@ fn prolong_add(p: &Csr, xc: &[f64], x: &mut [f64]) {
     }
 }
 
+/// b_coarse ← Pᵀ r through the transpose index (each entry summed in fine-row order).
+fn restrict(l: &Level, bc: &mut [f64]) {
+    for (big_i, bi) in bc.iter_mut().enumerate() {
+        let mut s = 0.0;
+        for &(i, q) in &l.tidx[l.tptr[big_i]..l.tptr[big_i + 1]] {
+            s += l.p.val[q] * l.res[i];
+        }
+        *bi = s;
+    }
+}
+
 impl Apply for Amg {
-    /// One V-cycle from a zero initial guess. The finest level's matrix is the hierarchy's
-    /// own copy, so `_a` is not read.
-    fn apply(&mut self, _a: &Csr, r: &[f64], z: &mut [f64]) {
+    /// One V-cycle from a zero initial guess. `a` must be the matrix the hierarchy was built
+    /// or last refreshed for: the finest level does not keep a copy of it.
+    fn apply(&mut self, a: &Csr, r: &[f64], z: &mut [f64]) {
         let nl = self.levels.len();
         if nl == 0 {
             self.coarse_b.copy_from_slice(r);
-            self.solve_coarse();
+            self.solve_coarse(a);
             z.copy_from_slice(&self.coarse_x);
             return;
         }
@@ -292,25 +505,27 @@ impl Apply for Amg {
         for k in 0..nl {
             let (fine, rest) = self.levels.split_at_mut(k + 1);
             let l = &mut fine[k];
+            let la: &Csr = if k == 0 { a } else { &l.a };
             l.x.fill(0.0);
-            gauss_seidel(&l.a, &l.b, &mut l.x, true);
-            l.a.residual(&l.b, &l.x, &mut l.res);
+            gauss_seidel(la, &l.b, &mut l.x, true);
+            la.residual(&l.b, &l.x, &mut l.res);
             let next_b = match rest.first_mut() {
                 Some(next) => &mut next.b,
                 None => &mut self.coarse_b,
             };
-            l.r.matvec(&l.res, next_b);
+            restrict(l, next_b);
         }
-        self.solve_coarse();
+        self.solve_coarse(a);
         for k in (0..nl).rev() {
             let (fine, rest) = self.levels.split_at_mut(k + 1);
             let l = &mut fine[k];
+            let la: &Csr = if k == 0 { a } else { &l.a };
             let xc = match rest.first() {
                 Some(next) => &next.x,
                 None => &self.coarse_x,
             };
             prolong_add(&l.p, xc, &mut l.x);
-            gauss_seidel(&l.a, &l.b, &mut l.x, false);
+            gauss_seidel(la, &l.b, &mut l.x, false);
         }
         z.copy_from_slice(&self.levels[0].x);
     }

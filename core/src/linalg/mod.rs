@@ -167,9 +167,12 @@ impl Pc {
     }
 }
 
-/// Iterative path state: the matrix copy the iteration multiplies with and its preconditioner.
+/// Iterative path state: the matrix copy the iteration multiplies with (the only full copy:
+/// block and multigrid parts read it or hold only what they must), its preconditioner and
+/// the Krylov work vectors.
 struct Iterative {
     a: Csr,
+    work: krylov::Work,
     blocks: usize,
     symmetric: bool,
     krylov: Krylov,
@@ -303,10 +306,31 @@ impl LinearSolver {
 
     fn prepare_iterative(&mut self, a: &CsMat<f64>, blocks: usize) -> Result<(), LinalgError> {
         let p = &self.params;
-        let csr = Csr::from_sprs(a);
+        // Same pattern: the copy's values are refilled in place (no allocation, and the
+        // Krylov work vectors stay).
+        let keep = self
+            .iterative
+            .as_ref()
+            .is_some_and(|it| it.blocks == blocks && it.a.same_pattern(a));
+        if !keep {
+            self.iterative = None;
+        }
+        let (csr, work) = match self.iterative.take() {
+            Some(mut it) => {
+                it.a.val.copy_from_slice(a.data());
+                self.iterative = Some(it);
+                (None, None)
+            }
+            None => (Some(Csr::from_sprs(a)), Some(krylov::Work::default())),
+        };
+        let view = match (&csr, &self.iterative) {
+            (Some(c), _) => c,
+            (None, Some(it)) => &it.a,
+            (None, None) => return Err(LinalgError::Shape("no iterative state".into())),
+        };
         // Checked at every prepare: a transport matrix is symmetric while the potential is flat
         // and stops being so later.
-        let symmetric = csr.is_symmetric(1e-13);
+        let symmetric = view.is_symmetric(1e-13);
         let krylov = match p.krylov {
             Krylov::Auto if symmetric => Krylov::Cg,
             Krylov::Auto => Krylov::Gmres,
@@ -321,11 +345,9 @@ impl LinearSolver {
         let kind = p.preconditioner;
         let reuse = match &self.iterative {
             Some(it) => {
-                it.blocks == blocks
-                    && it.a.same_pattern(a)
-                    && (it.krylov == Krylov::Cg) == (krylov == Krylov::Cg)
+                (it.krylov == Krylov::Cg) == (krylov == Krylov::Cg)
                     && match &it.pc {
-                        Pc::Scalar(s) => s.kind() == precond::resolve(kind, &csr),
+                        Pc::Scalar(s) => s.kind() == precond::resolve(kind, view),
                         Pc::Block(_) => true,
                     }
             }
@@ -334,16 +356,19 @@ impl LinearSolver {
         if reuse {
             if let Some(it) = &mut self.iterative {
                 match &mut it.pc {
-                    Pc::Scalar(s) => s.refresh(&csr)?,
-                    Pc::Block(b) => b.refresh(&csr)?,
+                    Pc::Scalar(s) => s.refresh(&it.a)?,
+                    Pc::Block(b) => b.refresh(&it.a)?,
                 }
-                it.a = csr;
                 it.symmetric = symmetric;
                 it.krylov = krylov;
             }
             return Ok(());
         }
-        self.iterative = None;
+        let (csr, work) = match (csr, self.iterative.take()) {
+            (Some(c), _) => (c, work.unwrap_or_default()),
+            (None, Some(it)) => (it.a, it.work),
+            (None, None) => return Err(LinalgError::Shape("no iterative state".into())),
+        };
         let pc = if blocks == 1 {
             Pc::Scalar(Scalar::new(kind, &csr)?)
         } else {
@@ -351,6 +376,7 @@ impl LinearSolver {
         };
         self.iterative = Some(Iterative {
             a: csr,
+            work,
             blocks,
             symmetric,
             krylov,
@@ -419,22 +445,26 @@ impl LinearSolver {
             .iterative
             .as_mut()
             .ok_or_else(|| LinalgError::Shape("solve before prepare".into()))?;
-        let guess = x.to_vec();
         let pc = it.pc.as_apply();
+        let work = &mut it.work;
         let outcome = match it.krylov {
             Krylov::Cg => {
-                let first = krylov::cg(&it.a, pc, b, x, stop);
+                if auto {
+                    work.guess.clear();
+                    work.guess.extend_from_slice(x);
+                }
+                let first = krylov::cg(&it.a, pc, b, x, stop, work);
                 if auto && matches!(first, Err(LinalgError::NotConverged { .. })) {
                     // Symmetric but not positive definite (or CG stalled): GMRES does not
                     // need definiteness. The symmetric preconditioner is still valid for it.
-                    x.copy_from_slice(&guess);
-                    krylov::gmres(&it.a, pc, b, x, stop, restart)
+                    x.copy_from_slice(&work.guess);
+                    krylov::gmres(&it.a, pc, b, x, stop, restart, work)
                 } else {
                     first
                 }
             }
-            Krylov::Bicgstab => krylov::bicgstab(&it.a, pc, b, x, stop),
-            Krylov::Gmres | Krylov::Auto => krylov::gmres(&it.a, pc, b, x, stop, restart),
+            Krylov::Bicgstab => krylov::bicgstab(&it.a, pc, b, x, stop, work),
+            Krylov::Gmres | Krylov::Auto => krylov::gmres(&it.a, pc, b, x, stop, restart, work),
         };
         let (iterations, relative_residual) = outcome?;
         check_finite(x)?;

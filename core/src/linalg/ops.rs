@@ -58,6 +58,17 @@ pub(crate) struct Csr {
 }
 
 impl Csr {
+    /// A 0×0 matrix (a placeholder that owns no storage).
+    pub(crate) fn empty() -> Self {
+        Self {
+            n: 0,
+            ncols: 0,
+            ptr: Vec::new(),
+            col: Vec::new(),
+            val: Vec::new(),
+        }
+    }
+
     pub(crate) fn from_sprs(a: &CsMat<f64>) -> Self {
         Self {
             n: a.rows(),
@@ -150,6 +161,29 @@ impl Csr {
                 }
             })
         })
+    }
+
+    /// The diagonal block of rows and columns `lo..hi`, and where each of its rows starts in
+    /// `self.val` (a block row is contiguous there, columns being sorted), so new values on
+    /// the same pattern are copied in with [`Csr::refill_block`].
+    pub(crate) fn sub_block_mapped(&self, lo: usize, hi: usize) -> (Csr, Vec<usize>) {
+        let sub = self.sub_block(lo, hi);
+        let from = (lo..hi)
+            .map(|i| {
+                let (c, _) = self.row(i);
+                self.ptr[i] + c.partition_point(|&j| j < lo)
+            })
+            .collect();
+        (sub, from)
+    }
+
+    /// Copies the values of the block of `parent` mapped by `from` (see
+    /// [`Csr::sub_block_mapped`]) into `self`, whose pattern is that block's.
+    pub(crate) fn refill_block(&mut self, parent: &Csr, from: &[usize]) {
+        for (i, &f) in from.iter().enumerate() {
+            let (lo, hi) = (self.ptr[i], self.ptr[i + 1]);
+            self.val[lo..hi].copy_from_slice(&parent.val[f..f + hi - lo]);
+        }
     }
 
     /// The diagonal block of rows and columns `lo..hi`.

@@ -61,13 +61,25 @@ pub(crate) struct Jacobi {
 
 impl Jacobi {
     pub(crate) fn new(a: &Csr) -> Result<Self, LinalgError> {
-        let d = a.diagonal();
-        if let Some(index) = d.iter().position(|v| *v == 0.0) {
-            return Err(LinalgError::Singular { index });
+        let mut j = Self {
+            inv_diag: vec![0.0; a.n],
+        };
+        j.refresh(a)?;
+        Ok(j)
+    }
+
+    /// New values, into the existing storage.
+    pub(crate) fn refresh(&mut self, a: &Csr) -> Result<(), LinalgError> {
+        self.inv_diag.resize(a.n, 0.0);
+        for (i, di) in self.inv_diag.iter_mut().enumerate() {
+            let (c, v) = a.row(i);
+            let d = c.binary_search(&i).map(|k| v[k]).unwrap_or(0.0);
+            if d == 0.0 {
+                return Err(LinalgError::Singular { index: i });
+            }
+            *di = 1.0 / d;
         }
-        Ok(Self {
-            inv_diag: d.iter().map(|v| 1.0 / v).collect(),
-        })
+        Ok(())
     }
 }
 
@@ -84,11 +96,13 @@ pub(crate) struct Ilu0 {
     lu: Csr,
     /// Position of the diagonal entry in each row.
     diag: Vec<usize>,
+    /// Column → slot of the row being eliminated (`usize::MAX` elsewhere), kept for refresh.
+    pos: Vec<usize>,
 }
 
 impl Ilu0 {
     pub(crate) fn new(a: &Csr) -> Result<Self, LinalgError> {
-        let mut lu = a.clone();
+        let lu = a.clone();
         let n = a.n;
         let mut diag = vec![0; n];
         for (i, d) in diag.iter_mut().enumerate() {
@@ -97,9 +111,30 @@ impl Ilu0 {
                 + c.binary_search(&i)
                     .map_err(|_| LinalgError::Singular { index: i })?;
         }
+        let mut f = Self {
+            lu,
+            diag,
+            pos: vec![usize::MAX; n],
+        };
+        f.factor()?;
+        Ok(f)
+    }
+
+    /// New values on the same pattern, factored in the existing storage.
+    pub(crate) fn refresh(&mut self, a: &Csr) -> Result<(), LinalgError> {
+        if a.ptr != self.lu.ptr || a.col != self.lu.col {
+            *self = Self::new(a)?;
+            return Ok(());
+        }
+        self.lu.val.copy_from_slice(&a.val);
+        self.factor()
+    }
+
+    fn factor(&mut self) -> Result<(), LinalgError> {
+        let n = self.lu.n;
+        let (lu, diag, pos) = (&mut self.lu, &self.diag, &mut self.pos);
         // Row-by-row (IKJ) elimination restricted to the pattern; `pos[j]` maps a column of
         // the current row to its slot.
-        let mut pos = vec![usize::MAX; n];
         for i in 0..n {
             let (lo, hi) = (lu.ptr[i], lu.ptr[i + 1]);
             for k in lo..hi {
@@ -125,7 +160,7 @@ impl Ilu0 {
                 return Err(LinalgError::Singular { index: i });
             }
         }
-        Ok(Self { lu, diag })
+        Ok(())
     }
 }
 
@@ -224,14 +259,8 @@ impl Scalar {
     pub(crate) fn refresh(&mut self, a: &Csr) -> Result<(), LinalgError> {
         match self {
             Self::Identity(_) => Ok(()),
-            Self::Jacobi(j) => {
-                *j = Jacobi::new(a)?;
-                Ok(())
-            }
-            Self::Ilu0(i) => {
-                *i = Ilu0::new(a)?;
-                Ok(())
-            }
+            Self::Jacobi(j) => j.refresh(a),
+            Self::Ilu0(i) => i.refresh(a),
             Self::Amg(m) => m.refresh(a),
         }
     }
@@ -248,10 +277,18 @@ impl Apply for Scalar {
     }
 }
 
-/// One species block: its matrix and preconditioner, or the exact inverse of a diagonal block.
-enum Part {
+/// One species block: its diagonal block (refilled in place on new values through `from`,
+/// where each of its rows starts in the coupled matrix's values) and how it is inverted.
+struct Part {
+    a: Csr,
+    from: Vec<usize>,
+    inv: Inv,
+}
+
+/// The exact inverse of a diagonal block, or a preconditioner of a general one.
+enum Inv {
     Diagonal(Jacobi),
-    General { a: Csr, p: Scalar },
+    General(Scalar),
 }
 
 /// Block preconditioner over `blocks` equal contiguous species blocks.
@@ -261,6 +298,8 @@ pub(crate) struct Block {
     kind: Preconditioner,
     parts: Vec<Part>,
     rhs: Vec<f64>,
+    /// Entries of the coupled matrix built for (guards the in-place refill).
+    nnz: usize,
 }
 
 /// Whether every stored off-diagonal entry of `a` is zero (an immobile species).
@@ -279,48 +318,53 @@ impl Block {
         scheme: BlockScheme,
     ) -> Result<Self, LinalgError> {
         let size = a.n / blocks;
-        let mut b = Self {
+        let mut parts = Vec::with_capacity(blocks);
+        for s in 0..blocks {
+            let (sub, from) = a.sub_block_mapped(s * size, (s + 1) * size);
+            let inv = Self::invert(kind, &sub, None).map_err(|e| offset(e, s * size))?;
+            parts.push(Part { a: sub, from, inv });
+        }
+        Ok(Self {
             size,
             scheme,
             kind,
-            parts: Vec::with_capacity(blocks),
+            parts,
             rhs: vec![0.0; size],
-        };
-        for s in 0..blocks {
-            let sub = a.sub_block(s * size, (s + 1) * size);
-            b.parts
-                .push(b.part(sub, None).map_err(|e| offset(e, s * size))?);
-        }
-        Ok(b)
+            nnz: a.col.len(),
+        })
     }
 
-    fn part(&self, sub: Csr, old: Option<Part>) -> Result<Part, LinalgError> {
-        if is_diagonal(&sub) {
-            return Ok(Part::Diagonal(Jacobi::new(&sub)?));
+    fn invert(kind: Preconditioner, sub: &Csr, old: Option<Inv>) -> Result<Inv, LinalgError> {
+        if is_diagonal(sub) {
+            return Ok(match old {
+                Some(Inv::Diagonal(mut j)) => {
+                    j.refresh(sub)?;
+                    Inv::Diagonal(j)
+                }
+                _ => Inv::Diagonal(Jacobi::new(sub)?),
+            });
         }
         match old {
-            Some(Part::General { a, mut p })
-                if a.ptr == sub.ptr && a.col == sub.col && p.kind() == resolve(self.kind, &sub) =>
-            {
-                p.refresh(&sub)?;
-                Ok(Part::General { a: sub, p })
+            Some(Inv::General(mut p)) if p.kind() == resolve(kind, sub) => {
+                p.refresh(sub)?;
+                Ok(Inv::General(p))
             }
-            _ => {
-                let p = Scalar::new(self.kind, &sub)?;
-                Ok(Part::General { a: sub, p })
-            }
+            _ => Ok(Inv::General(Scalar::new(kind, sub)?)),
         }
     }
 
-    /// New values on the same pattern.
+    /// New values on the pattern built for: each diagonal block is refilled in place and its
+    /// preconditioner refreshed (rebuilt if its kind changes).
     pub(crate) fn refresh(&mut self, a: &Csr) -> Result<(), LinalgError> {
-        let parts = std::mem::take(&mut self.parts);
-        for (s, old) in parts.into_iter().enumerate() {
-            let sub = a.sub_block(s * self.size, (s + 1) * self.size);
-            let part = self
-                .part(sub, Some(old))
+        if a.n != self.size * self.parts.len() || a.col.len() != self.nnz {
+            *self = Self::new(a, self.parts.len(), self.kind, self.scheme)?;
+            return Ok(());
+        }
+        for (s, part) in self.parts.iter_mut().enumerate() {
+            part.a.refill_block(a, &part.from);
+            let old = std::mem::replace(&mut part.inv, Inv::General(Scalar::Identity(Identity)));
+            part.inv = Self::invert(self.kind, &part.a, Some(old))
                 .map_err(|e| offset(e, s * self.size))?;
-            self.parts.push(part);
         }
         Ok(())
     }
@@ -353,9 +397,10 @@ impl Apply for Block {
                     }
                 }
             }
-            match &mut self.parts[s] {
-                Part::Diagonal(d) => d.apply(a, &self.rhs, zs),
-                Part::General { a: sub, p } => p.apply(sub, &self.rhs, zs),
+            let part = &mut self.parts[s];
+            match &mut part.inv {
+                Inv::Diagonal(d) => d.apply(&part.a, &self.rhs, zs),
+                Inv::General(p) => p.apply(&part.a, &self.rhs, zs),
             }
         }
     }
@@ -397,8 +442,8 @@ mod tests {
         let mesh = testmats::disk_mesh(0.3);
         let a = Csr::from_sprs(&testmats::coupled_species(&mesh, 0.5, 3));
         let blk = Block::new(&a, 3, Preconditioner::Ilu0, BlockScheme::GaussSeidel).unwrap();
-        assert!(matches!(blk.parts[2], Part::Diagonal(_)));
-        assert!(matches!(blk.parts[0], Part::General { .. }));
+        assert!(matches!(blk.parts[2].inv, Inv::Diagonal(_)));
+        assert!(matches!(blk.parts[0].inv, Inv::General(_)));
     }
 
     #[test]
