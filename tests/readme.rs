@@ -62,4 +62,11 @@ fn readme_main_command_runs() {
             .join(format!("colony_4species_{k:04}.vtu"));
         assert!(f.exists(), "{} missing", f.display());
     }
+    for f in [
+        "colony_4species.pvd",
+        "colony_4species_all_cells_0006.png",
+        "run.json",
+    ] {
+        assert!(dir.path().join("run").join(f).exists(), "{f} missing");
+    }
 }
