@@ -280,9 +280,7 @@ impl Simulation {
             force_euler: false,
             t_start: t0,
         };
-        let steady: Vec<usize> = (0..sc)
-            .filter(|&s| matches!(sim.problem.species[s].kind, SpeciesKind::QuasiSteady { .. }))
-            .collect();
+        let steady: Vec<usize> = (0..sc).filter(|&s| sim.is_steady(s)).collect();
         if !steady.is_empty() {
             let mut sys = system(&sim.disc, steady, &sim.params);
             let hist = vec![0.0; sc * n];
@@ -306,6 +304,14 @@ impl Simulation {
         }
         sim.history.push((t0, u0));
         Ok(sim)
+    }
+
+    /// Whether species `s` is quasi-steady (no time derivative; left out of error norms).
+    fn is_steady(&self, s: usize) -> bool {
+        matches!(
+            self.problem.species[s].kind,
+            SpeciesKind::QuasiSteady { .. }
+        )
     }
 
     /// Current time.
@@ -545,10 +551,7 @@ impl Simulation {
         );
         let mut rate: f64 = 0.0;
         for s in 0..sc {
-            if matches!(
-                self.problem.species[s].kind,
-                SpeciesKind::QuasiSteady { .. }
-            ) {
+            if self.is_steady(s) {
                 continue;
             }
             for i in 0..n {
@@ -634,10 +637,7 @@ impl Simulation {
         let mut sum = 0.0;
         let mut count = 0usize;
         for s in 0..sc {
-            if matches!(
-                self.problem.species[s].kind,
-                SpeciesKind::QuasiSteady { .. }
-            ) {
+            if self.is_steady(s) {
                 continue;
             }
             for i in 0..n {
@@ -724,11 +724,7 @@ impl Simulation {
         let n = self.n;
         let mut sum = 0.0;
         for &s in &sys.species {
-            let steady = matches!(
-                self.problem.species[s].kind,
-                SpeciesKind::QuasiSteady { .. }
-            );
-            let c = if steady {
+            let c = if self.is_steady(s) {
                 1.0
             } else {
                 time.coef.max(f64::MIN_POSITIVE)
