@@ -14,12 +14,9 @@ use std::path::PathBuf;
 pub struct PlateArgs {
     /// Outer outline: circle:R, ellipse:A,B, rect:W,H, annulus:R,r or polygon:x,y;x,y;...
     /// (append @X,Y to move the centre of a circle, ellipse, rectangle or annulus).
-    #[arg(
-        long,
-        value_name = "SHAPE",
-        conflicts_with = "outline",
-        required_unless_present = "outline"
-    )]
+    // Not required by the parser: `run` may take the plate from a run file, and `spec()`
+    // says what is missing.
+    #[arg(long, value_name = "SHAPE", conflicts_with = "outline")]
     pub plate: Option<String>,
     /// Outline file: lines of `x y`, loops separated by blank lines (first outer, then holes).
     #[arg(long, value_name = "FILE")]

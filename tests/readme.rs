@@ -70,3 +70,37 @@ fn readme_main_command_runs() {
         assert!(dir.path().join("run").join(f).exists(), "{f} missing");
     }
 }
+
+#[test]
+fn readme_run_file_is_accepted() {
+    let text = readme();
+    let start = text.find("```toml\n").expect("toml block") + 8;
+    let end = start + text[start..].find("```").expect("end of block");
+    let models = concat!(env!("CARGO_MANIFEST_DIR"), "/models/");
+    // Same keys; a short end time and the outputs in a temporary folder.
+    let dir = tempfile::tempdir().unwrap();
+    let snippet = text[start..end]
+        .replace("\"../models/", &format!("\"{models}"))
+        .replace("end = 24.0", "end = 0.5")
+        .replace("every = 4.0", "every = 0.5")
+        .replace("size = 1.0", "size = 2.0");
+    assert!(
+        snippet.contains(models),
+        "model path not found in the snippet"
+    );
+    let path = dir.path().join("run.toml");
+    std::fs::write(&path, snippet).unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_agarium"))
+        .args(["run", "--run-file", path.to_str().unwrap(), "-q"])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(dir
+        .path()
+        .join("out/cut-plate/colony_4species_u_0001.png")
+        .exists());
+}

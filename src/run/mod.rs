@@ -5,6 +5,7 @@
 mod manifest;
 mod outputs;
 mod progress;
+mod run_file;
 
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -26,6 +27,7 @@ use crate::plate_args::{MeshingArgs, PlateArgs};
 use manifest::{now_unix, sha256, Manifest, MeshFigures, CHECKPOINT};
 use outputs::{summary, write_pictures, write_state, History, CONSERVED_WARNING};
 use progress::Progress;
+use run_file::RunFile;
 
 /// Exit code of a run interrupted by Ctrl-C (128 + SIGINT, common practice).
 pub const EXIT_INTERRUPTED: i32 = 130;
@@ -37,7 +39,10 @@ pub const EXIT_BLOWUP: i32 = 3;
 #[derive(clap::Args, Debug)]
 pub struct RunArgs {
     /// The model file.
-    pub model: PathBuf,
+    pub model: Option<PathBuf>,
+    /// Read the settings from a TOML run file; options given here override it.
+    #[arg(long, value_name = "FILE")]
+    pub run_file: Option<PathBuf>,
     #[command(flatten)]
     pub plate: PlateArgs,
     #[command(flatten)]
@@ -47,39 +52,29 @@ pub struct RunArgs {
     pub set: Vec<String>,
     /// End time.
     #[arg(long, value_name = "T", allow_hyphen_values = true)]
-    pub end: f64,
+    pub end: Option<f64>,
     /// Interval between written states [default: a tenth of --end].
     #[arg(long, value_name = "DT", allow_hyphen_values = true)]
     pub every: Option<f64>,
     /// Output folder [default: out/MODEL-NAME].
     #[arg(short, long, value_name = "DIR")]
     pub out: Option<PathBuf>,
-    /// Time discretisation.
-    #[arg(long, value_enum, default_value_t = SchemeArg::Bdf2)]
-    pub scheme: SchemeArg,
+    /// Time discretisation [default: bdf2].
+    #[arg(long, value_enum)]
+    pub scheme: Option<SchemeArg>,
     /// Species coupling within a step: full Newton, or one linear solve per species with
-    /// the others lagged (cheaper on large meshes).
-    #[arg(long, value_enum, default_value_t = CouplingArg::Newton)]
-    pub coupling: CouplingArg,
-    /// Linear solver.
-    #[arg(long, value_enum, default_value_t = LinearArg::Auto)]
-    pub linear: LinearArg,
-    /// Relative tolerance of the local time error.
-    #[arg(
-        long,
-        value_name = "TOL",
-        default_value_t = 1e-3,
-        allow_hyphen_values = true
-    )]
-    pub rtol: f64,
-    /// Absolute tolerance of the local time error (species units).
-    #[arg(
-        long,
-        value_name = "TOL",
-        default_value_t = 1e-6,
-        allow_hyphen_values = true
-    )]
-    pub atol: f64,
+    /// the others lagged (cheaper on large meshes) [default: newton].
+    #[arg(long, value_enum)]
+    pub coupling: Option<CouplingArg>,
+    /// Linear solver [default: auto].
+    #[arg(long, value_enum)]
+    pub linear: Option<LinearArg>,
+    /// Relative tolerance of the local time error [default: 1e-3].
+    #[arg(long, value_name = "TOL", allow_hyphen_values = true)]
+    pub rtol: Option<f64>,
+    /// Absolute tolerance of the local time error, species units [default: 1e-6].
+    #[arg(long, value_name = "TOL", allow_hyphen_values = true)]
+    pub atol: Option<f64>,
     /// First step (with --fixed-step: every step).
     #[arg(long, value_name = "DT", allow_hyphen_values = true)]
     pub dt: Option<f64>,
@@ -94,12 +89,12 @@ pub struct RunArgs {
     #[arg(long = "picture", value_name = "FIELD")]
     pub pictures: Vec<String>,
     /// Name of the model's time unit, for picture titles.
-    #[arg(long, value_name = "NAME", default_value = "")]
-    pub time_unit: String,
+    #[arg(long, value_name = "NAME")]
+    pub time_unit: Option<String>,
     /// Also write a checkpoint every N accepted steps (one is always written at every output
-    /// time and on Ctrl-C); 0 for none in between.
-    #[arg(long, value_name = "N", default_value_t = 0)]
-    pub checkpoint_every: usize,
+    /// time and on Ctrl-C); 0 for none in between [default: 0].
+    #[arg(long, value_name = "N")]
+    pub checkpoint_every: Option<usize>,
     /// Print nothing but errors.
     #[arg(short, long)]
     pub quiet: bool,
@@ -145,30 +140,41 @@ fn positive(flag: &str, v: f64) -> Result<f64, CliError> {
 }
 
 impl RunArgs {
-    /// Stepper settings from the options.
-    pub fn stepper(&self) -> Result<StepperParams, CliError> {
-        let mut p = StepperParams {
-            scheme: match self.scheme {
+    /// Stepper settings: `base` (from a run file, or the defaults) with the options given on
+    /// the command line applied.
+    pub fn stepper(&self, base: StepperParams) -> Result<StepperParams, CliError> {
+        let mut p = base;
+        if let Some(s) = self.scheme {
+            p.scheme = match s {
                 SchemeArg::Bdf2 => Scheme::Bdf2,
                 SchemeArg::Euler => Scheme::BackwardEuler,
-            },
-            coupling: match self.coupling {
+            };
+        }
+        if let Some(c) = self.coupling {
+            p.coupling = match c {
                 CouplingArg::Newton => Coupling::Newton,
                 CouplingArg::Lagged => Coupling::Lagged,
-            },
-            rtol: positive("--rtol", self.rtol)?,
-            atol: positive("--atol", self.atol)?,
-            adaptive: !self.fixed_step,
-            ..StepperParams::default()
-        };
-        p.linear = LinearParams {
-            method: match self.linear {
-                LinearArg::Auto => Method::Auto,
-                LinearArg::Direct => Method::Direct,
-                LinearArg::Iterative => Method::Iterative,
-            },
-            ..LinearParams::default()
-        };
+            };
+        }
+        if let Some(l) = self.linear {
+            p.linear = LinearParams {
+                method: match l {
+                    LinearArg::Auto => Method::Auto,
+                    LinearArg::Direct => Method::Direct,
+                    LinearArg::Iterative => Method::Iterative,
+                },
+                ..p.linear
+            };
+        }
+        if let Some(v) = self.rtol {
+            p.rtol = positive("--rtol", v)?;
+        }
+        if let Some(v) = self.atol {
+            p.atol = positive("--atol", v)?;
+        }
+        if self.fixed_step {
+            p.adaptive = false;
+        }
         if let Some(dt) = self.dt {
             p.dt_initial = Some(positive("--dt", dt)?);
         }
@@ -244,8 +250,19 @@ fn mesh_of(
 /// Runs `agarium run`; returns the exit code of a completed run (0, 3 at a suspected
 /// blow-up, 130 when interrupted).
 pub fn run(args: &RunArgs) -> Result<i32, CliError> {
-    let end = positive("--end", args.end)?;
-    let every = positive("--every", args.every.unwrap_or(end / 10.0))?;
+    let file = match &args.run_file {
+        Some(p) => RunFile::read(p)?,
+        None => RunFile::default(),
+    };
+    let model_path = args.model.clone().or(file.model.clone()).ok_or_else(|| {
+        CliError::input("give the model file (MODEL, or `model` in the --run-file)")
+    })?;
+    let end = args
+        .end
+        .or(file.end)
+        .ok_or_else(|| CliError::input("give the end time (--end, or `end` in the --run-file)"))?;
+    let end = positive("--end", end)?;
+    let every = positive("--every", args.every.or(file.every).unwrap_or(end / 10.0))?;
     let times = output_times(end, every);
     if times.len() > 100_000 {
         return Err(CliError::input(format!(
@@ -253,17 +270,29 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
             times.len()
         )));
     }
-    let params = args.stepper()?;
-    if !args.model.is_file() {
+    let params = args.stepper(file.solver.clone().unwrap_or_default())?;
+    let set = file.merged_set(&args.set);
+    let pictures = if args.pictures.is_empty() {
+        file.pictures.clone()
+    } else {
+        args.pictures.clone()
+    };
+    let time_unit = args
+        .time_unit
+        .clone()
+        .or(file.time_unit.clone())
+        .unwrap_or_default();
+    let checkpoint_every = args.checkpoint_every.or(file.checkpoint_every).unwrap_or(0);
+    if !model_path.is_file() {
         return Err(CliError::input(format!(
             "{}: no such model file",
-            args.model.display()
+            model_path.display()
         )));
     }
-    let model_file = args.model.display().to_string();
-    let model_text = std::fs::read_to_string(&args.model)
+    let model_file = model_path.display().to_string();
+    let model_text = std::fs::read_to_string(&model_path)
         .map_err(|e| CliError::input(format!("{model_file}: {e}")))?;
-    let (model, problem) = model_problem(&model_file, &model_text, &args.set)?;
+    let (model, problem) = model_problem(&model_file, &model_text, &set)?;
     let known: Vec<&str> = problem
         .species
         .iter()
@@ -276,7 +305,7 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
                 .map(|d| d.name.as_str()),
         )
         .collect();
-    for p in &args.pictures {
+    for p in &pictures {
         if !known.contains(&p.as_str()) {
             return Err(CliError::input(format!(
                 "--picture {p}: the model has no species or field of that name (it has: {})",
@@ -284,12 +313,32 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
             )));
         }
     }
-    let spec = args.plate.spec()?;
+    // The plate and its mesh come from the command line when it names a plate, otherwise
+    // from the run file; --size/--max-area and --spot given here refine a file's [mesh].
+    let cli_plate = args.plate.plate.is_some() || args.plate.outline.is_some();
+    let (spec, options) = match (&file.plate, cli_plate) {
+        (Some(spec), false) => {
+            let mut options = match &file.mesh {
+                Some(m) => m.clone(),
+                None => args.meshing.options(spec)?,
+            };
+            if args.meshing.size.is_some() || args.meshing.max_area.is_some() {
+                options.size = args.meshing.options(spec)?.size;
+            }
+            if !args.meshing.spot.is_empty() {
+                options.spots = args.meshing.options(spec)?.spots;
+            }
+            (spec.clone(), options)
+        }
+        _ => {
+            let spec = args.plate.spec()?;
+            let options = args.meshing.options(&spec)?;
+            (spec, options)
+        }
+    };
     spec.check_numbers().map_err(CliError::input)?;
-    let options = args.meshing.options(&spec)?;
     let (mesh, mesh_figures) = mesh_of(&spec, &options)?;
-    let stem = args
-        .model
+    let stem = model_path
         .file_stem()
         .and_then(|s| s.to_str())
         .unwrap_or("run")
@@ -297,6 +346,7 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     let dir = args
         .out
         .clone()
+        .or(file.out.clone())
         .unwrap_or_else(|| PathBuf::from("out").join(&stem));
     let manifest = Manifest {
         tool: format!("agarium {}", env!("CARGO_PKG_VERSION")),
@@ -304,7 +354,7 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         model_file,
         model_sha256: sha256(&model_text),
         model_text,
-        overrides: args.set.clone(),
+        overrides: set,
         parameters: model
             .decl
             .params
@@ -317,10 +367,10 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         solver: params,
         end,
         every,
-        pictures: args.pictures.clone(),
-        time_unit: args.time_unit.clone(),
+        pictures,
+        time_unit,
         stem,
-        checkpoint_steps: args.checkpoint_every,
+        checkpoint_steps: checkpoint_every,
         threads: rayon_threads(),
         started_unix: now_unix(),
         finished_unix: None,

@@ -1,0 +1,110 @@
+//! Run files: every `agarium run` setting in one TOML file, so a run can be repeated and
+//! shared. Paths in the file are relative to the file's folder. The command line overrides
+//! the file (see `RunArgs`); unknown keys are errors naming the key, line and column.
+//!
+//! ```toml
+//! model = "../models/colony_4species.rhai"
+//! end = 24.0
+//! every = 4.0
+//! out = "out/two-spots"
+//! pictures = ["u"]
+//! time_unit = "h"
+//!
+//! [set]
+//! chi_0 = 0.6
+//!
+//! [plate]
+//! outer = { shape = "circle", radius = 20.0 }
+//! cuts = [{ cut = "half_plane", normal = [1.0, 0.0], offset = 15.0 }]
+//!
+//! [mesh]
+//! size = 1.0
+//! spots = [{ centre = [0.0, 0.0], size = 0.1 }]
+//!
+//! [solver]
+//! rtol = 1e-4
+//! ```
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use agarium_core::geometry::PlateSpec;
+use agarium_core::mesh::MeshOptions;
+use agarium_core::time::StepperParams;
+use serde::Deserialize;
+
+use crate::error::CliError;
+
+/// The contents of a run file; every key is optional.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RunFile {
+    /// Model file.
+    pub model: Option<PathBuf>,
+    /// End time.
+    pub end: Option<f64>,
+    /// Output interval.
+    pub every: Option<f64>,
+    /// Output folder.
+    pub out: Option<PathBuf>,
+    /// Parameter overrides.
+    #[serde(default)]
+    pub set: BTreeMap<String, f64>,
+    /// The plate.
+    pub plate: Option<PlateSpec>,
+    /// Meshing options.
+    pub mesh: Option<MeshOptions>,
+    /// Solver settings.
+    pub solver: Option<StepperParams>,
+    /// Fields drawn at every output time.
+    #[serde(default)]
+    pub pictures: Vec<String>,
+    /// Time unit for titles.
+    pub time_unit: Option<String>,
+    /// Checkpoint cadence in steps.
+    pub checkpoint_every: Option<usize>,
+}
+
+impl RunFile {
+    /// Reads and checks `path`; relative paths inside are resolved against its folder.
+    pub fn read(path: &Path) -> Result<Self, CliError> {
+        let text = std::fs::read_to_string(path)
+            .map_err(|e| CliError::input(format!("{}: {e}", path.display())))?;
+        let mut file: RunFile = toml::from_str(&text)
+            .map_err(|e| CliError::input(format!("{}: {e}", path.display())))?;
+        let base = path.parent().unwrap_or(Path::new(""));
+        let resolve = |p: &mut Option<PathBuf>| {
+            if let Some(q) = p.as_mut() {
+                if q.is_relative() {
+                    *q = base.join(&*q);
+                }
+            }
+        };
+        resolve(&mut file.model);
+        resolve(&mut file.out);
+        if file.mesh.is_some() && file.plate.is_none() {
+            return Err(CliError::input(format!(
+                "{}: a [mesh] table needs a [plate] table",
+                path.display()
+            )));
+        }
+        Ok(file)
+    }
+
+    /// `--set` texts of the file's overrides, with those of the command line replacing the
+    /// file's for the same name.
+    pub fn merged_set(&self, cli: &[String]) -> Vec<String> {
+        let cli_names: Vec<&str> = cli
+            .iter()
+            .filter_map(|t| t.split_once('=').map(|(n, _)| n.trim()))
+            .collect();
+        let mut out: Vec<String> = self
+            .set
+            .iter()
+            .filter(|(n, _)| !cli_names.contains(&n.as_str()))
+            .map(|(n, v)| format!("{n}={v:e}"))
+            .collect();
+        out.extend(cli.iter().cloned());
+        out
+    }
+}

@@ -1,0 +1,125 @@
+//! TOML run files: every run setting in one file, the command line overriding it, unknown
+//! keys refused with their line.
+
+use std::path::Path;
+use std::process::{Command, Output};
+
+fn agarium(args: &[&str], dir: &Path) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_agarium"))
+        .args(args)
+        .current_dir(dir)
+        .output()
+        .expect("run agarium")
+}
+
+fn run_file(dir: &Path, extra: &str) -> String {
+    let model = concat!(env!("CARGO_MANIFEST_DIR"), "/models/colony_4species.rhai");
+    let text = format!(
+        r#"model = "{model}"
+end = 1.0
+every = 0.5
+out = "result"
+time_unit = "h"
+
+[set]
+chi_0 = 0.3
+
+[plate]
+outer = {{ shape = "circle", radius = 4.0 }}
+cuts = [{{ cut = "half_plane", normal = [1.0, 0.0], offset = 3.0 }}]
+
+[mesh]
+size = 0.4
+spots = [{{ centre = [0.0, 0.0], size = 0.1 }}]
+
+[solver]
+rtol = 1e-4
+{extra}"#
+    );
+    let path = dir.join("plate-run.toml");
+    std::fs::write(&path, text).unwrap();
+    path.display().to_string()
+}
+
+fn manifest(dir: &Path) -> serde_json::Value {
+    serde_json::from_str(&std::fs::read_to_string(dir.join("run.json")).unwrap()).unwrap()
+}
+
+#[test]
+fn a_run_file_sets_everything_and_the_command_line_overrides_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = run_file(dir.path(), "");
+    // Run from elsewhere: the output folder is relative to the run file.
+    let elsewhere = tempfile::tempdir().unwrap();
+    let o = agarium(&["run", "--run-file", &file, "-q"], elsewhere.path());
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let out = dir.path().join("result");
+    let m = manifest(&out);
+    assert_eq!(m["end"], 1.0);
+    assert_eq!(m["solver"]["rtol"], 1e-4);
+    assert_eq!(m["mesh"]["size"], 0.4);
+    assert_eq!(m["plate"]["cuts"][0]["offset"], 3.0);
+    let chi = m["parameters"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p[0] == "chi_0")
+        .unwrap()[1]
+        .as_f64();
+    assert_eq!(chi, Some(0.3));
+    assert!(out.join("colony_4species_0002.vtu").exists());
+
+    let o = agarium(
+        &[
+            "run",
+            "--run-file",
+            &file,
+            "--end",
+            "0.5",
+            "--set",
+            "chi_0=0.5",
+            "--rtol",
+            "1e-3",
+            "-q",
+        ],
+        elsewhere.path(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let m = manifest(&out);
+    assert_eq!(m["end"], 0.5);
+    assert_eq!(m["solver"]["rtol"], 1e-3);
+    let chi = m["parameters"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|p| p[0] == "chi_0")
+        .unwrap()[1]
+        .as_f64();
+    assert_eq!(chi, Some(0.5));
+}
+
+#[test]
+fn bad_run_files_exit_2_name_the_key_and_line_and_write_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    for (extra, expect) in [
+        ("colour = \"red\"\n", "unknown field `colour`"),
+        ("max_newton = \"many\"\n", "line 20"),
+        ("adaptive = false\n", "fixed steps need dt_initial"),
+    ] {
+        let file = run_file(dir.path(), extra);
+        let o = agarium(&["run", "--run-file", &file], dir.path());
+        let err = String::from_utf8_lossy(&o.stderr).into_owned();
+        assert_eq!(o.status.code(), Some(2), "{extra}: {err}");
+        assert!(err.contains(expect), "{extra}: {err}");
+        assert!(
+            !dir.path().join("result").exists(),
+            "{extra}: output written"
+        );
+    }
+    // A run file without a model and no MODEL argument.
+    let path = dir.path().join("empty.toml");
+    std::fs::write(&path, "end = 1.0\n").unwrap();
+    let o = agarium(&["run", "--run-file", path.to_str().unwrap()], dir.path());
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("give the model file"));
+}
