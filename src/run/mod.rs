@@ -484,9 +484,15 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
     let problem = session.problem.clone();
     let mesh = session.mesh.clone();
     let quiet = session.quiet;
-    // The start of the run (t = 0) is what conserved drifts are measured from; on a resume it
-    // is recomputed from the initial conditions, which are deterministic.
-    let start = initial_diagnostics(&session)?;
+    // The start of the run (t = 0) is what conserved drifts are measured from: the fresh
+    // simulation's own state, or on a resume recomputed from the (deterministic) initial
+    // conditions.
+    let start = if resumed {
+        initial_diagnostics(&session)?
+    } else {
+        Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), sim.time())
+            .map_err(CliError::failure)?
+    };
     let csv_path = dir.join(format!("{stem}_diagnostics.csv"));
     let mut csv = DiagnosticsCsv::new(csv_path, sim.species_names(), &start);
     let mut pvd = PvdIndex::new();
