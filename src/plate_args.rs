@@ -74,7 +74,7 @@ pub struct MeshingArgs {
     pub max_nodes: usize,
 }
 
-fn numbers(what: &str, text: &str, sep: char) -> Result<Vec<f64>, String> {
+pub(crate) fn numbers(what: &str, text: &str, sep: char) -> Result<Vec<f64>, String> {
     text.split(sep)
         .map(|s| {
             let s = s.trim();

@@ -29,6 +29,13 @@ fn args(out: &Path, extra: &[&str]) -> Vec<String> {
         "8",
         "--every",
         "4",
+        // Overridden initial data and compressed states must come back on a resume too.
+        "--inoculum",
+        "u@0.2,0,0.5,0.8,gaussian",
+        "--initial",
+        "n=0.9",
+        "--compress",
+        "3",
         "-q",
         "-o",
         out.to_str().unwrap(),

@@ -100,6 +100,9 @@ pub struct SpeciesDecl {
     pub diffusion: Option<TermSrc>,
     /// Initial condition.
     pub initial: TermSrc,
+    /// Where the initial condition was given when it replaced the model's own (a run
+    /// file or the command line); `None` for the declaration itself.
+    pub initial_at: Option<SourcePos>,
     /// Reaction term.
     pub reaction: TermSrc,
     /// Unit, free text.
@@ -477,6 +480,7 @@ fn species(s: &Shared, ctx: &NativeCallContext, name: &str, spec: Map) -> RResul
             kind,
             diffusion,
             initial,
+            initial_at: None,
             reaction,
             unit,
             about,

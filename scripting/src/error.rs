@@ -20,7 +20,12 @@ pub struct SourcePos {
 
 impl fmt::Display for SourcePos {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{}:{}:{}", self.file, self.line, self.column)
+        // A position outside any file (a command-line option) has no line.
+        if self.line == 0 {
+            write!(f, "{}", self.file)
+        } else {
+            write!(f, "{}:{}:{}", self.file, self.line, self.column)
+        }
     }
 }
 

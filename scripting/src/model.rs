@@ -176,7 +176,7 @@ impl Model {
         let d = &self.decl;
         let mut v = Vec::new();
         for s in &d.species {
-            v.push((&s.initial, &s.at));
+            v.push((&s.initial, s.initial_at.as_ref().unwrap_or(&s.at)));
             v.push((&s.reaction, &s.at));
             if let Some(t) = &s.diffusion {
                 v.push((t, &s.at));
@@ -284,6 +284,30 @@ impl Model {
         }
     }
 
+    /// Replaces the initial condition of `species` by the expression `expr` (a function of
+    /// x, y and the parameters, like the model's own), given at `at` (a run file or the
+    /// command line), so errors in it point there. It is checked when the model compiles.
+    pub fn set_initial(
+        &mut self,
+        species: &str,
+        expr: &str,
+        at: SourcePos,
+    ) -> Result<(), ModelError> {
+        let Some(s) = self.decl.species.iter_mut().find(|s| s.name == species) else {
+            let names: Vec<&str> = self.decl.species.iter().map(|s| s.name.as_str()).collect();
+            return Err(ModelError::Declaration {
+                at,
+                message: format!(
+                    "initial condition for unknown species `{species}` (the model has: {})",
+                    names.join(", ")
+                ),
+            });
+        };
+        s.initial = TermSrc::Expr(expr.to_string());
+        s.initial_at = Some(at);
+        Ok(())
+    }
+
     /// Compiles every term into kernels.
     pub fn compile(&self) -> Result<CompiledModel, ModelError> {
         let mut g = Graph::new();
@@ -326,7 +350,8 @@ impl Model {
             let ctx = format!("reaction of `{}`", s.name);
             reactions.push(self.lower(&mut g, &s.reaction, Scope::All, &ctx, &s.at)?);
             let ctx = format!("initial condition of `{}`", s.name);
-            initial.push(self.lower(&mut g, &s.initial, Scope::Space, &ctx, &s.at)?);
+            let at = s.initial_at.as_ref().unwrap_or(&s.at);
+            initial.push(self.lower(&mut g, &s.initial, Scope::Space, &ctx, at)?);
         }
         let reactions = kernel(&mut g, ns, &reactions, true);
         let initial = kernel(&mut g, ns, &initial, false);

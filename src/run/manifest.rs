@@ -3,11 +3,12 @@
 //! (so editing the file afterwards changes nothing), the overrides, the plate, the meshing
 //! options and the solver settings.
 
+use std::collections::BTreeMap;
 use std::path::Path;
 
 use agarium_core::geometry::PlateSpec;
 use agarium_core::mesh::MeshOptions;
-use agarium_core::output::write_atomically;
+use agarium_core::output::{write_atomically, VtuEncoding};
 use agarium_core::time::StepperParams;
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
@@ -62,8 +63,18 @@ pub struct Manifest {
     pub end: f64,
     /// Output interval.
     pub every: f64,
-    /// Fields drawn at every output time.
+    /// Fields drawn in pictures.
     pub pictures: Vec<String>,
+    /// Times of the pictures (empty: every output time).
+    #[serde(default)]
+    pub picture_times: Vec<f64>,
+    /// Initial expressions replacing the model's, per species (from `[initial]`,
+    /// `[[inoculum]]`, `--initial` and `--inoculum`), as compiled.
+    #[serde(default)]
+    pub initial: BTreeMap<String, String>,
+    /// How the .vtu arrays are stored.
+    #[serde(default)]
+    pub vtu: VtuEncoding,
     /// Time unit for titles.
     pub time_unit: String,
     /// File-name stem of the outputs.
@@ -80,6 +91,13 @@ pub struct Manifest {
     pub exit: String,
     /// Time of the last checkpoint.
     pub checkpoint_time: Option<f64>,
+    /// Wall seconds of the run (of the last resume, for a resumed run).
+    #[serde(default)]
+    pub wall_seconds: Option<f64>,
+    /// Of those, seconds spent writing outputs (diagnostics, states, pictures, plots,
+    /// checkpoints).
+    #[serde(default)]
+    pub output_seconds: Option<f64>,
 }
 
 /// Seconds since the Unix epoch.

@@ -2,6 +2,7 @@
 //! write the output folder (states, series index, diagnostics, pictures, manifest,
 //! checkpoints) and print a summary on stderr.
 
+mod initial;
 mod manifest;
 mod outputs;
 mod progress;
@@ -24,6 +25,8 @@ use agarium_scripting::{Model, Overrides};
 
 use crate::error::CliError;
 use crate::plate_args::{MeshingArgs, PlateArgs};
+use agarium_core::output::VtuEncoding;
+use initial::InitialOverrides;
 use manifest::{now_unix, sha256, Manifest, MeshFigures, CHECKPOINT};
 use outputs::{summary, write_pictures, write_state, History, CONSERVED_WARNING};
 use progress::Progress;
@@ -88,6 +91,28 @@ pub struct RunArgs {
     /// (MODEL-NAME_FIELD_0000.png, …); repeatable.
     #[arg(long = "picture", value_name = "FIELD")]
     pub pictures: Vec<String>,
+    /// Draw the pictures at these times instead of at every output time (comma-separated
+    /// or repeated); the run stops exactly there.
+    #[arg(
+        long = "picture-at",
+        value_name = "T,…",
+        value_delimiter = ',',
+        allow_hyphen_values = true
+    )]
+    pub picture_at: Vec<f64>,
+    /// Replace the model's initial condition of a species by an expression in x, y and the
+    /// parameters, e.g. `--initial 'n=1.2'` (repeatable).
+    #[arg(long = "initial", value_name = "NAME=EXPR")]
+    pub initial: Vec<String>,
+    /// Place an inoculation spot: `SPECIES@X,Y,RADIUS[,LEVEL[,disc|gaussian]]` (level
+    /// default 1, disc default). The spots of a species replace its initial condition (they
+    /// add to an --initial expression); the mesh is refined at each.
+    #[arg(long = "inoculum", value_name = "SPOT", allow_hyphen_values = true)]
+    pub inocula: Vec<String>,
+    /// Compress the .vtu files with zlib (level 1 fastest to 9 smallest) [default level: 6].
+    #[arg(long, value_name = "LEVEL", num_args = 0..=1, default_missing_value = "6",
+          value_parser = clap::value_parser!(u32).range(0..=9))]
+    pub compress: Option<u32>,
     /// Name of the model's time unit, for picture titles.
     #[arg(long, value_name = "NAME")]
     pub time_unit: Option<String>,
@@ -193,6 +218,68 @@ fn output_times(end: f64, every: f64) -> Vec<f64> {
         .collect()
 }
 
+/// A time the run stops at, and what it writes there.
+#[derive(Clone, Copy, Debug, PartialEq)]
+struct Stop {
+    t: f64,
+    /// Number of the state file written here.
+    state: Option<usize>,
+    /// Number of the pictures drawn here.
+    picture: Option<usize>,
+}
+
+/// Every stop after t = 0: the output times (states, and pictures unless `picture_times`
+/// is given) merged with the picture times.
+fn stops(end: f64, every: f64, picture_times: &[f64]) -> Vec<Stop> {
+    let mut out: Vec<Stop> = output_times(end, every)
+        .into_iter()
+        .enumerate()
+        .map(|(k, t)| Stop {
+            t,
+            state: Some(k + 1),
+            picture: picture_times.is_empty().then_some(k + 1),
+        })
+        .collect();
+    for (j, &t) in picture_times.iter().enumerate() {
+        if t <= 0.0 {
+            continue;
+        }
+        match out.iter_mut().find(|s| s.t == t) {
+            Some(s) => s.picture = Some(j),
+            None => out.push(Stop {
+                t,
+                state: None,
+                picture: Some(j),
+            }),
+        }
+    }
+    out.sort_by(|a, b| a.t.total_cmp(&b.t));
+    out
+}
+
+/// Number of the pictures at t = 0, if any are drawn there.
+fn first_picture(picture_times: &[f64]) -> Option<usize> {
+    if picture_times.is_empty() {
+        Some(0)
+    } else {
+        picture_times.iter().position(|&t| t == 0.0)
+    }
+}
+
+/// Checks and sorts picture times within [0, end].
+fn picture_times(mut times: Vec<f64>, end: f64) -> Result<Vec<f64>, CliError> {
+    for &t in &times {
+        if !(t.is_finite() && (0.0..=end).contains(&t)) {
+            return Err(CliError::input(format!(
+                "--picture-at {t}: picture times must lie between 0 and the end time {end}"
+            )));
+        }
+    }
+    times.sort_by(f64::total_cmp);
+    times.dedup();
+    Ok(times)
+}
+
 /// Arguments of `agarium resume`.
 #[derive(clap::Args, Debug)]
 pub struct ResumeArgs {
@@ -209,7 +296,7 @@ struct Session {
     dir: PathBuf,
     problem: Problem,
     mesh: Arc<agarium_core::mesh::Mesh>,
-    times: Vec<f64>,
+    stops: Vec<Stop>,
     quiet: bool,
 }
 
@@ -221,9 +308,15 @@ fn install_interrupt_handler() {
     let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, Ordering::SeqCst));
 }
 
-fn model_problem(file: &str, text: &str, set: &[String]) -> Result<(Model, Problem), CliError> {
+fn model_problem(
+    file: &str,
+    text: &str,
+    set: &[String],
+    initial: &InitialOverrides,
+) -> Result<(Model, Problem), CliError> {
     let overrides = Overrides::parse(set).map_err(CliError::input)?;
-    let model = Model::load(file, text, &overrides).map_err(CliError::input)?;
+    let mut model = Model::load(file, text, &overrides).map_err(CliError::input)?;
+    initial.apply(&mut model)?;
     let compiled = model.compile().map_err(CliError::input)?;
     let problem = compiled.to_problem();
     Ok((model, problem))
@@ -263,13 +356,28 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         .ok_or_else(|| CliError::input("give the end time (--end, or `end` in the --run-file)"))?;
     let end = positive("--end", end)?;
     let every = positive("--every", args.every.or(file.every).unwrap_or(end / 10.0))?;
-    let times = output_times(end, every);
-    if times.len() > 100_000 {
+    let count = output_times(end, every).len();
+    if count > 100_000 {
         return Err(CliError::input(format!(
-            "--every {every} gives {} output files; choose a longer interval",
-            times.len()
+            "--every {every} gives {count} output files; choose a longer interval"
         )));
     }
+    let picture_times = picture_times(
+        if args.picture_at.is_empty() {
+            file.picture_times.clone()
+        } else {
+            args.picture_at.clone()
+        },
+        end,
+    )?;
+    let vtu = match args.compress.or(file.compress).unwrap_or(0) {
+        0 => VtuEncoding::Base64,
+        level => VtuEncoding::Zlib { level },
+    };
+    let initial = InitialOverrides::merge(
+        file.initial_overrides.clone(),
+        InitialOverrides::from_cli(&args.initial, &args.inocula)?,
+    );
     let params = args.stepper(file.solver.clone().unwrap_or_default())?;
     let set = file.merged_set(&args.set);
     let pictures = if args.pictures.is_empty() {
@@ -277,6 +385,11 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     } else {
         args.pictures.clone()
     };
+    if !picture_times.is_empty() && pictures.is_empty() {
+        return Err(CliError::input(
+            "picture times are given but no field to draw: add --picture FIELD (or `pictures` in the run file)",
+        ));
+    }
     let time_unit = args
         .time_unit
         .clone()
@@ -292,7 +405,7 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     let model_file = model_path.display().to_string();
     let model_text = std::fs::read_to_string(&model_path)
         .map_err(|e| CliError::input(format!("{model_file}: {e}")))?;
-    let (model, problem) = model_problem(&model_file, &model_text, &set)?;
+    let (model, problem) = model_problem(&model_file, &model_text, &set, &initial)?;
     let known: Vec<&str> = problem
         .species
         .iter()
@@ -316,7 +429,7 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     // The plate and its mesh come from the command line when it names a plate, otherwise
     // from the run file; --size/--max-area and --spot given here refine a file's [mesh].
     let cli_plate = args.plate.plate.is_some() || args.plate.outline.is_some();
-    let (spec, options) = match (&file.plate, cli_plate) {
+    let (spec, mut options) = match (&file.plate, cli_plate) {
         (Some(spec), false) => {
             let mut options = match &file.mesh {
                 Some(m) => m.clone(),
@@ -337,7 +450,9 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         }
     };
     spec.check_numbers().map_err(CliError::input)?;
+    initial.refine(&spec, &mut options)?;
     let (mesh, mesh_figures) = mesh_of(&spec, &options)?;
+    initial.check_coverage(&mesh)?;
     let stem = model_path
         .file_stem()
         .and_then(|s| s.to_str())
@@ -368,6 +483,13 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         end,
         every,
         pictures,
+        picture_times,
+        initial: initial
+            .expressions()
+            .into_iter()
+            .map(|(name, (expr, _))| (name, expr))
+            .collect(),
+        vtu,
         time_unit,
         stem,
         checkpoint_steps: checkpoint_every,
@@ -376,13 +498,15 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         finished_unix: None,
         exit: "running".into(),
         checkpoint_time: None,
+        wall_seconds: None,
+        output_seconds: None,
     };
     let session = Session {
+        stops: stops(end, every, &manifest.picture_times),
         manifest,
         dir,
         problem,
         mesh,
-        times,
         quiet: args.quiet,
     };
     let sim = Simulation::new(
@@ -412,10 +536,25 @@ pub fn resume(args: &ResumeArgs) -> Result<i32, CliError> {
         )));
     }
     let checkpoint = Checkpoint::read(&dir.join(CHECKPOINT)).map_err(CliError::input)?;
+    let mut initial = InitialOverrides::default();
+    for (name, expr) in &manifest.initial {
+        initial.species.entry(name.clone()).or_default().expr = Some((
+            expr.clone(),
+            agarium_scripting::SourcePos {
+                file: format!(
+                    "{} (initial.{name})",
+                    dir.join(manifest::MANIFEST).display()
+                ),
+                line: 0,
+                column: 0,
+            },
+        ));
+    }
     let (_, problem) = model_problem(
         &manifest.model_file,
         &manifest.model_text,
         &manifest.overrides,
+        &initial,
     )?;
     let (mesh, figures) = mesh_of(&manifest.plate, &manifest.mesh)?;
     if figures != manifest.mesh_figures {
@@ -433,7 +572,7 @@ pub fn resume(args: &ResumeArgs) -> Result<i32, CliError> {
             manifest.threads
         );
     }
-    let times = output_times(manifest.end, manifest.every);
+    let stops = stops(manifest.end, manifest.every, &manifest.picture_times);
     let sim = Simulation::restore(
         problem.clone(),
         mesh.clone(),
@@ -446,7 +585,7 @@ pub fn resume(args: &ResumeArgs) -> Result<i32, CliError> {
         dir,
         problem,
         mesh,
-        times,
+        stops,
         quiet: args.quiet,
     };
     execute(session, sim, true)
@@ -484,6 +623,7 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
     let problem = session.problem.clone();
     let mesh = session.mesh.clone();
     let quiet = session.quiet;
+    let vtu = session.manifest.vtu;
     // The start of the run (t = 0) is what conserved drifts are measured from: the fresh
     // simulation's own state, or on a resume recomputed from the (deterministic) initial
     // conditions.
@@ -498,6 +638,8 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
     let mut pvd = PvdIndex::new();
     let t_now = sim.time();
     let mut history;
+    // Wall time spent on outputs: diagnostics, states, pictures, plots, checkpoints, tables.
+    let mut output_seconds = 0.0f64;
     if resumed {
         csv.reload_until(t_now).map_err(CliError::input)?;
         pvd = PvdIndex::read(&dir.join(format!("{stem}.pvd"))).map_err(CliError::input)?;
@@ -514,19 +656,23 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
             &start,
         );
         history = History::new(sim.species_names(), &start);
+        let clock = Instant::now();
         session.manifest.write(&dir)?;
-        write_state(&dir, &stem, 0, &sim, &start, &mut pvd)?;
-        let pics = session.manifest.pictures.clone();
-        write_pictures(
-            &dir,
-            &stem,
-            0,
-            &sim,
-            &start,
-            &pics,
-            &session.manifest.time_unit,
-        )?;
+        write_state(&dir, &stem, 0, &sim, &start, &mut pvd, vtu)?;
+        if let Some(j) = first_picture(&session.manifest.picture_times) {
+            let pics = session.manifest.pictures.clone();
+            write_pictures(
+                &dir,
+                &stem,
+                j,
+                &sim,
+                &start,
+                &pics,
+                &session.manifest.time_unit,
+            )?;
+        }
         save_checkpoint(&mut session, &sim, &csv)?;
+        output_seconds += clock.elapsed().as_secs_f64();
     }
     let end = session.manifest.end;
     if !quiet {
@@ -550,8 +696,9 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
     let mut warned = false;
     let mut failure: Option<String> = None;
     let every_steps = session.manifest.checkpoint_steps;
-    let times = session.times.clone();
-    for (k, &t) in times.iter().enumerate() {
+    let stops = session.stops.clone();
+    for stop in stops {
+        let t = stop.t;
         if t <= t_now {
             continue;
         }
@@ -561,6 +708,7 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
             let mut since_checkpoint = 0usize;
             let mut wants_checkpoint = false;
             let result = sim.advance_to(t, &mut |rep| {
+                let clock = Instant::now();
                 let state = rep.state.as_slice().unwrap_or(&[]);
                 let d = match Diagnostics::evaluate(&problem, &mesh, state, rep.time) {
                     Ok(d) => d,
@@ -588,6 +736,7 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
                         ));
                     }
                 }
+                output_seconds += clock.elapsed().as_secs_f64();
                 progress.step(rep.time, rep.dt);
                 since_checkpoint += 1;
                 if INTERRUPTED.load(Ordering::SeqCst) {
@@ -600,7 +749,9 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
                 Control::Continue
             });
             // Whatever happened, the table so far is kept.
+            let clock = Instant::now();
             csv.save().map_err(CliError::failure)?;
+            output_seconds += clock.elapsed().as_secs_f64();
             if let Some(e) = failure.take() {
                 progress.finish();
                 let err = CliError::failure(format!("diagnostics: {e}"));
@@ -622,7 +773,9 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
                 && wants_checkpoint
                 && !INTERRUPTED.load(Ordering::SeqCst)
             {
+                let clock = Instant::now();
                 save_checkpoint(&mut session, &sim, &csv)?;
+                output_seconds += clock.elapsed().as_secs_f64();
                 continue;
             }
             break;
@@ -639,6 +792,7 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
                 &sim,
                 &d,
                 &mut scratch,
+                vtu,
             )?;
             std::fs::remove_file(dir.join(format!("{stem}_interrupted.pvd"))).ok();
             save_checkpoint(&mut session, &sim, &csv)?;
@@ -649,21 +803,19 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
             );
             return finish(&mut session, "interrupted", Ok(EXIT_INTERRUPTED));
         }
+        let clock = Instant::now();
         let d = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), sim.time())
             .map_err(CliError::failure)?;
-        write_state(&dir, &stem, k + 1, &sim, &d, &mut pvd)?;
-        let pics = session.manifest.pictures.clone();
-        write_pictures(
-            &dir,
-            &stem,
-            k + 1,
-            &sim,
-            &d,
-            &pics,
-            &session.manifest.time_unit,
-        )?;
+        if let Some(k) = stop.state {
+            write_state(&dir, &stem, k, &sim, &d, &mut pvd, vtu)?;
+        }
+        if let Some(j) = stop.picture {
+            let pics = session.manifest.pictures.clone();
+            write_pictures(&dir, &stem, j, &sim, &d, &pics, &session.manifest.time_unit)?;
+        }
         history.plot(&dir, &stem)?;
         save_checkpoint(&mut session, &sim, &csv)?;
+        output_seconds += clock.elapsed().as_secs_f64();
         if !quiet {
             let s = sim.stats();
             progress.println(&format!(
@@ -681,8 +833,11 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
     progress.finish();
     let last = Diagnostics::evaluate(&problem, &mesh, sim.state_slice(), sim.time())
         .map_err(CliError::failure)?;
+    let wall = started.elapsed().as_secs_f64();
+    session.manifest.wall_seconds = Some(wall);
+    session.manifest.output_seconds = Some(output_seconds);
     if !quiet {
-        summary(&sim, &start, &last, started.elapsed().as_secs_f64());
+        summary(&sim, &start, &last, wall, output_seconds);
     }
     match outcome {
         Outcome::BlowUp(report) => {

@@ -4,8 +4,8 @@ use std::path::Path;
 
 use agarium_core::observe::{Diagnostics, PvdIndex};
 use agarium_core::output::{
-    snapshot_title, write_field_png, write_series_png, write_vtu, Field, PlotOptions, Series,
-    SnapshotOptions,
+    snapshot_title, write_field_png, write_series_png, write_vtu_as, Field, PlotOptions, Series,
+    SnapshotOptions, VtuEncoding,
 };
 use agarium_core::time::Simulation;
 
@@ -183,6 +183,7 @@ pub(crate) fn write_state(
     sim: &Simulation,
     d: &Diagnostics,
     pvd: &mut PvdIndex,
+    encoding: VtuEncoding,
 ) -> Result<(), CliError> {
     let state = sim.state();
     let names = sim.species_names();
@@ -198,23 +199,31 @@ pub(crate) fn write_state(
         fields.push(Field { name, values });
     }
     let name = format!("{stem}_{k:04}.vtu");
-    write_vtu(&dir.join(&name), sim.mesh(), &fields, &[]).map_err(CliError::failure)?;
+    write_vtu_as(&dir.join(&name), sim.mesh(), &fields, &[], encoding)
+        .map_err(CliError::failure)?;
     pvd.push(sim.time(), &name);
     pvd.write(&dir.join(format!("{stem}.pvd")))
         .map_err(CliError::failure)
 }
 
-pub(crate) fn summary(sim: &Simulation, start: &Diagnostics, last: &Diagnostics, seconds: f64) {
+pub(crate) fn summary(
+    sim: &Simulation,
+    start: &Diagnostics,
+    last: &Diagnostics,
+    seconds: f64,
+    output_seconds: f64,
+) {
     let s = sim.stats();
     eprintln!(
-        "reached t = {:.6e} in {} steps ({} rejected), {} Newton iterations, {} Jacobians, {} linear solves, {:.2} s",
+        "reached t = {:.6e} in {} steps ({} rejected), {} Newton iterations, {} Jacobians, {} linear solves, {:.2} s ({:.1} % on outputs)",
         sim.time(),
         s.steps,
         s.rejected,
         s.newton_iterations,
         s.jacobians,
         s.linear_solves,
-        seconds
+        seconds,
+        100.0 * output_seconds / seconds.max(1e-12)
     );
     eprintln!(
         "  {:<20} {:>14} {:>14} {:>14}",

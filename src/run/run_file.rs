@@ -23,6 +23,16 @@
 //!
 //! [solver]
 //! rtol = 1e-4
+//!
+//! [initial]            # replaces the model's initial condition of a species
+//! n = "1.2"
+//!
+//! [[inoculum]]         # spots replace it too (added to an [initial] expression if given)
+//! species = "u"
+//! at = [-8.0, 0.0]
+//! radius = 1.0
+//! level = 0.8          # default 1
+//! profile = "disc"     # or "gaussian" (radius = standard deviation)
 //! ```
 
 use std::collections::BTreeMap;
@@ -31,8 +41,11 @@ use std::path::{Path, PathBuf};
 use agarium_core::geometry::PlateSpec;
 use agarium_core::mesh::MeshOptions;
 use agarium_core::time::StepperParams;
+use agarium_scripting::SourcePos;
 use serde::Deserialize;
+use toml::Spanned;
 
+use super::initial::{InitialOverrides, Inoculum};
 use crate::error::CliError;
 
 /// The contents of a run file; every key is optional.
@@ -63,6 +76,28 @@ pub struct RunFile {
     pub time_unit: Option<String>,
     /// Checkpoint cadence in steps.
     pub checkpoint_every: Option<usize>,
+    /// Times at which pictures are drawn (default: every output time).
+    #[serde(default)]
+    pub picture_times: Vec<f64>,
+    /// zlib level (1–9) of compressed .vtu files; 0 or absent for plain base64.
+    pub compress: Option<u32>,
+    /// Initial expressions replacing the model's, per species.
+    #[serde(default)]
+    initial: BTreeMap<String, Spanned<String>>,
+    /// Inoculation spots replacing the model's initial condition of their species.
+    #[serde(default)]
+    inoculum: Vec<Spanned<Inoculum>>,
+    /// The two above with their positions in the file.
+    #[serde(skip)]
+    pub initial_overrides: InitialOverrides,
+}
+
+/// Line and column (1-based) of byte `offset` in `text`.
+fn line_column(text: &str, offset: usize) -> (usize, usize) {
+    let before = &text[..offset.min(text.len())];
+    let line = before.matches('\n').count() + 1;
+    let column = before.rsplit('\n').next().map_or(0, |l| l.chars().count()) + 1;
+    (line, column)
 }
 
 impl RunFile {
@@ -80,6 +115,39 @@ impl RunFile {
                 }
             }
         };
+        let at = |offset: usize| {
+            let (line, column) = line_column(&text, offset);
+            SourcePos {
+                file: path.display().to_string(),
+                line,
+                column,
+            }
+        };
+        let mut overrides = InitialOverrides::default();
+        for (name, expr) in &file.initial {
+            overrides.species.entry(name.clone()).or_default().expr =
+                Some((expr.get_ref().clone(), at(expr.span().start)));
+        }
+        for spot in &file.inoculum {
+            let pos = at(spot.span().start);
+            spot.get_ref().check(&pos.to_string())?;
+            let i = spot.get_ref().clone();
+            overrides
+                .species
+                .entry(i.species.clone())
+                .or_default()
+                .spots
+                .push((i, pos));
+        }
+        file.initial_overrides = overrides;
+        if let Some(level) = file.compress {
+            if level > 9 {
+                return Err(CliError::input(format!(
+                    "{}: compress = {level}: the zlib level is 1 (fastest) to 9 (smallest), 0 for none",
+                    path.display()
+                )));
+            }
+        }
         resolve(&mut file.model);
         resolve(&mut file.out);
         if file.mesh.is_some() && file.plate.is_none() {

@@ -5,6 +5,7 @@ mod atomic;
 mod picture;
 mod png;
 mod vtu;
+mod vtu_zlib;
 
 pub use atomic::{write_atomically, write_atomically_via_path};
 pub use picture::{
@@ -12,7 +13,7 @@ pub use picture::{
     ValueRange, NAN_GREY,
 };
 pub use png::{write_mesh_png, PngOptions};
-pub use vtu::{write_vtu, Field};
+pub use vtu::{write_vtu, write_vtu_as, Field, VtuEncoding};
 
 use std::path::PathBuf;
 

@@ -1,4 +1,5 @@
-//! VTK XML unstructured grid (.vtu) files through `vtkio`.
+//! VTK XML unstructured grid (.vtu) files: plain base64 through `vtkio`, or zlib-compressed
+//! through our own encoder (see `vtu_zlib`).
 
 use super::{write_atomically, OutputError};
 use crate::mesh::Mesh;
@@ -16,8 +17,39 @@ pub struct Field<'a> {
     pub values: &'a [f64],
 }
 
-/// Writes `mesh` with point and cell fields as a .vtu file (z = 0), atomically.
-pub fn write_vtu(
+/// How the arrays of a .vtu file are stored.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(rename_all = "snake_case", tag = "encoding")]
+pub enum VtuEncoding {
+    /// Raw little-endian values in base64 (largest, quickest to write).
+    #[default]
+    Base64,
+    /// zlib-compressed 32 KiB blocks in base64, at zlib `level` 1 (fastest) to 9 (smallest).
+    Zlib {
+        /// zlib compression level.
+        level: u32,
+    },
+}
+
+/// Writes `mesh` with point and cell fields as a .vtu file (z = 0) in `encoding`,
+/// atomically.
+pub fn write_vtu_as(
+    path: &Path,
+    mesh: &Mesh,
+    point_fields: &[Field],
+    cell_fields: &[Field],
+    encoding: VtuEncoding,
+) -> Result<(), OutputError> {
+    match encoding {
+        VtuEncoding::Base64 => write_vtu(path, mesh, point_fields, cell_fields),
+        VtuEncoding::Zlib { level } => {
+            super::vtu_zlib::write_vtu_zlib(path, mesh, point_fields, cell_fields, level)
+        }
+    }
+}
+
+/// Refuses fields whose length does not match the mesh.
+pub(super) fn check_lengths(
     path: &Path,
     mesh: &Mesh,
     point_fields: &[Field],
@@ -47,6 +79,21 @@ pub fn write_vtu(
             )));
         }
     }
+    Ok(())
+}
+
+/// Writes `mesh` with point and cell fields as a plain base64 .vtu file (z = 0), atomically.
+pub fn write_vtu(
+    path: &Path,
+    mesh: &Mesh,
+    point_fields: &[Field],
+    cell_fields: &[Field],
+) -> Result<(), OutputError> {
+    check_lengths(path, mesh, point_fields, cell_fields)?;
+    let encode = |reason: String| OutputError::Encode {
+        path: path.to_path_buf(),
+        reason,
+    };
     let mut points = Vec::with_capacity(3 * mesh.num_nodes());
     for i in 0..mesh.num_nodes() {
         let p = mesh.node(i);

@@ -224,8 +224,13 @@ impl Monitor {
                     ..report
                 });
             }
-            let share = report.mass_near_peak / report.mass.max(f64::MIN_POSITIVE);
-            if share >= self.params.concentration {
+            let mass = report.mass.max(f64::MIN_POSITIVE);
+            let share = report.mass_near_peak / mass;
+            // A bounded aggregate spread over many nodes (a colony's dense core on a coarse
+            // mesh) also gathers half the mass near its peak; a collapse at the mesh scale
+            // puts a good part of it into the peak node itself.
+            let in_peak_node = report.peak * mesh.node_areas[report.node] / mass;
+            if share >= self.params.concentration && in_peak_node >= self.params.peak_share {
                 return Some(report);
             }
         }

@@ -50,8 +50,11 @@ pub struct BlowupParams {
     /// …radius of that disk in element diameters…
     pub radius_elements: f64,
     /// …while its sup-norm has grown by at least this factor since the start and is still
-    /// growing.
+    /// growing…
     pub peak_growth: f64,
+    /// …and the peak node alone (its value times its area) holds at least this share of the
+    /// mass.
+    pub peak_share: f64,
 }
 
 impl Default for BlowupParams {
@@ -64,6 +67,7 @@ impl Default for BlowupParams {
             concentration: 0.5,
             radius_elements: 3.0,
             peak_growth: 4.0,
+            peak_share: 0.05,
         }
     }
 }
