@@ -54,6 +54,8 @@ fn readme_main_command_runs() {
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(out.status.success(), "{err}");
     assert!(err.contains("reached t = 2.400000e1"), "{err}");
+    // The README shows the last picture of the run; it must be the one the run draws.
+    assert!(text.contains("(examples/cut-plate-twin-spots/all_cells_24h.png)"));
     // The README promises files _0000 to _0006.
     for k in 0..=6 {
         let f = dir

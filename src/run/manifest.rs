@@ -68,6 +68,9 @@ pub struct Manifest {
     /// Times of the pictures (empty: every output time).
     #[serde(default)]
     pub picture_times: Vec<f64>,
+    /// Width of the pictures in pixels.
+    #[serde(default = "default_picture_width")]
+    pub picture_width: u32,
     /// Initial expressions replacing the model's, per species (from `[initial]`,
     /// `[[inoculum]]`, `--initial` and `--inoculum`), as compiled.
     #[serde(default)]
@@ -98,6 +101,13 @@ pub struct Manifest {
     /// checkpoints).
     #[serde(default)]
     pub output_seconds: Option<f64>,
+}
+
+/// Width of pictures when none is chosen.
+pub const DEFAULT_PICTURE_WIDTH: u32 = 900;
+
+fn default_picture_width() -> u32 {
+    DEFAULT_PICTURE_WIDTH
 }
 
 /// Seconds since the Unix epoch.

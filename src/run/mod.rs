@@ -100,6 +100,10 @@ pub struct RunArgs {
         allow_hyphen_values = true
     )]
     pub picture_at: Vec<f64>,
+    /// Width of the pictures in pixels (320 to 8192; the height follows the plate)
+    /// [default: 900].
+    #[arg(long, value_name = "PX", value_parser = clap::value_parser!(u32).range(320..=8192))]
+    pub picture_width: Option<u32>,
     /// Replace the model's initial condition of a species by an expression in x, y and the
     /// parameters, e.g. `--initial 'n=1.2'` (repeatable).
     #[arg(long = "initial", value_name = "NAME=EXPR")]
@@ -109,8 +113,9 @@ pub struct RunArgs {
     /// add to an --initial expression); the mesh is refined at each.
     #[arg(long = "inoculum", value_name = "SPOT", allow_hyphen_values = true)]
     pub inocula: Vec<String>,
-    /// Compress the .vtu files with zlib (level 1 fastest to 9 smallest) [default level: 6].
-    #[arg(long, value_name = "LEVEL", num_args = 0..=1, default_missing_value = "6",
+    /// Compress the .vtu files with zlib, level 1 (fastest; the default, and for simulated
+    /// fields as small as 9 within 1 %) to 9.
+    #[arg(long, value_name = "LEVEL", num_args = 0..=1, default_missing_value = "1",
           value_parser = clap::value_parser!(u32).range(0..=9))]
     pub compress: Option<u32>,
     /// Name of the model's time unit, for picture titles.
@@ -484,6 +489,10 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         every,
         pictures,
         picture_times,
+        picture_width: args
+            .picture_width
+            .or(file.picture_width)
+            .unwrap_or(manifest::DEFAULT_PICTURE_WIDTH),
         initial: initial
             .expressions()
             .into_iter()
@@ -660,16 +669,7 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
         session.manifest.write(&dir)?;
         write_state(&dir, &stem, 0, &sim, &start, &mut pvd, vtu)?;
         if let Some(j) = first_picture(&session.manifest.picture_times) {
-            let pics = session.manifest.pictures.clone();
-            write_pictures(
-                &dir,
-                &stem,
-                j,
-                &sim,
-                &start,
-                &pics,
-                &session.manifest.time_unit,
-            )?;
+            write_pictures(&dir, &stem, j, &sim, &start, &session.manifest)?;
         }
         save_checkpoint(&mut session, &sim, &csv)?;
         output_seconds += clock.elapsed().as_secs_f64();
@@ -810,8 +810,7 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
             write_state(&dir, &stem, k, &sim, &d, &mut pvd, vtu)?;
         }
         if let Some(j) = stop.picture {
-            let pics = session.manifest.pictures.clone();
-            write_pictures(&dir, &stem, j, &sim, &d, &pics, &session.manifest.time_unit)?;
+            write_pictures(&dir, &stem, j, &sim, &d, &session.manifest)?;
         }
         history.plot(&dir, &stem)?;
         save_checkpoint(&mut session, &sim, &csv)?;

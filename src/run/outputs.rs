@@ -9,20 +9,20 @@ use agarium_core::output::{
 };
 use agarium_core::time::Simulation;
 
+use super::manifest::Manifest;
 use crate::error::CliError;
 
-/// Pictures of the chosen fields for state number `k`.
+/// Pictures of the run's chosen fields (at its width and with its time unit), number `k`.
 pub(crate) fn write_pictures(
     dir: &Path,
     stem: &str,
     k: usize,
     sim: &Simulation,
     d: &Diagnostics,
-    pictures: &[String],
-    time_unit: &str,
+    settings: &Manifest,
 ) -> Result<(), CliError> {
     let state = sim.state();
-    for name in pictures {
+    for name in &settings.pictures {
         let values: &[f64] = match sim.species_names().iter().position(|s| s == name) {
             Some(s) => state.row(s).to_slice().unwrap_or(&[]),
             None => match d.fields.iter().find(|(n, _)| n == name) {
@@ -31,7 +31,8 @@ pub(crate) fn write_pictures(
             },
         };
         let options = SnapshotOptions {
-            title: snapshot_title(name, sim.time(), time_unit),
+            title: snapshot_title(name, sim.time(), &settings.time_unit),
+            width: settings.picture_width,
             ..SnapshotOptions::default()
         };
         let path = dir.join(format!("{stem}_{name}_{k:04}.png"));

@@ -79,6 +79,8 @@ pub struct RunFile {
     /// Times at which pictures are drawn (default: every output time).
     #[serde(default)]
     pub picture_times: Vec<f64>,
+    /// Width of the pictures in pixels.
+    pub picture_width: Option<u32>,
     /// zlib level (1–9) of compressed .vtu files; 0 or absent for plain base64.
     pub compress: Option<u32>,
     /// Initial expressions replacing the model's, per species.
@@ -140,6 +142,14 @@ impl RunFile {
                 .push((i, pos));
         }
         file.initial_overrides = overrides;
+        if let Some(w) = file.picture_width {
+            if !(320..=8192).contains(&w) {
+                return Err(CliError::input(format!(
+                    "{}: picture_width = {w}: pictures are 320 to 8192 pixels wide",
+                    path.display()
+                )));
+            }
+        }
         if let Some(level) = file.compress {
             if level > 9 {
                 return Err(CliError::input(format!(

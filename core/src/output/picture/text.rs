@@ -131,6 +131,10 @@ pub(super) fn encode_png(canvas: &Canvas, out: &mut dyn Write) -> Result<(), Str
     let mut encoder = png::Encoder::new(out, canvas.width as u32, canvas.height as u32);
     encoder.set_color(png::ColorType::Rgb);
     encoder.set_depth(png::BitDepth::Eight);
+    // Smooth colour ramps: per-row filter choice and the best deflate level halve a
+    // snapshot's size (measured 135 → 70 KB at 480 px).
+    encoder.set_adaptive_filter(png::AdaptiveFilterType::Adaptive);
+    encoder.set_compression(png::Compression::Best);
     let mut writer = encoder.write_header().map_err(|e| e.to_string())?;
     writer
         .write_image_data(&canvas.pixels)
