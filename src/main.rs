@@ -5,6 +5,7 @@ mod error;
 mod mesh;
 mod plate_args;
 mod run;
+mod verify;
 
 use clap::{Parser, Subcommand};
 use error::CliError;
@@ -27,6 +28,9 @@ enum Command {
     Run(Box<run::RunArgs>),
     /// Continue an interrupted run from its output folder.
     Resume(run::ResumeArgs),
+    /// Check the solver against manufactured solutions and published results; print a table
+    /// and exit 1 if any check fails.
+    Verify(verify::VerifyArgs),
 }
 
 fn main() {
@@ -36,6 +40,7 @@ fn main() {
         Command::Check(args) => check::run(args).map(|()| 0),
         Command::Run(args) => run::run(args),
         Command::Resume(args) => run::resume(args),
+        Command::Verify(args) => verify::run(args),
     };
     match result {
         Ok(0) => {}
