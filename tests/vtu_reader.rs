@@ -253,6 +253,16 @@ for folder in sys.argv[1:]:
             "arrays": {k: v.tolist() for k, v in arrays.items()},
             "points_xy": pts[:, :2].tolist(), "connectivity": conn.tolist(),
         })
+    import csv
+    with open(os.path.join(folder, "colony_4species_diagnostics.csv"), newline="") as f:
+        rows = list(csv.DictReader(f))
+    out[folder + "_csv"] = {
+        "columns": list(rows[0].keys()),
+        "rows": len(rows),
+        "t_last": float(rows[-1]["t"]),
+        "worst_drift": max(abs(float(r["biomass_and_food_drift"])) for r in rows),
+        "min_u": min(float(r["u_min"]) for r in rows),
+    }
     out[folder] = entries
 print(json.dumps(out))
 "#;
@@ -296,6 +306,24 @@ fn series_index_and_compressed_states_read_back_identically() {
         String::from_utf8_lossy(&read.stderr)
     );
     let v: serde_json::Value = serde_json::from_slice(&read.stdout).unwrap();
+    // The diagnostics table, parsed by Python's csv module: the documented columns, one row
+    // per accepted step up to the end, and the model's conserved combination conserved.
+    let table = &v["plain_csv"];
+    let columns: Vec<&str> = table["columns"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| c.as_str().unwrap())
+        .collect();
+    assert_eq!(
+        columns[..5],
+        ["t", "dt", "newton_iterations", "rejections", "u_integral"]
+    );
+    assert!(columns.contains(&"biomass_and_food_drift"), "{columns:?}");
+    assert!(table["rows"].as_u64().unwrap() > 3);
+    assert_eq!(table["t_last"], 0.5);
+    assert!(table["worst_drift"].as_f64().unwrap() < 1e-10, "{table}");
+    assert!(table["min_u"].as_f64().unwrap() >= 0.0, "{table}");
     let (plain, zlib) = (
         v["plain"].as_array().unwrap(),
         v["zlib"].as_array().unwrap(),

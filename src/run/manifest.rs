@@ -84,6 +84,9 @@ pub struct Manifest {
     pub stem: String,
     /// Checkpoint every this many accepted steps (0: only at output times).
     pub checkpoint_steps: usize,
+    /// Also checkpoint after this many wall-clock minutes.
+    #[serde(default)]
+    pub checkpoint_minutes: Option<f64>,
     /// Worker threads the run used (results are reproducible bit for bit for the same count).
     pub threads: usize,
     /// Start, seconds since the Unix epoch.

@@ -125,6 +125,10 @@ pub struct RunArgs {
     /// time and on Ctrl-C); 0 for none in between [default: 0].
     #[arg(long, value_name = "N")]
     pub checkpoint_every: Option<usize>,
+    /// Also write a checkpoint whenever this many wall-clock minutes have passed since the
+    /// last one (the trajectory does not depend on when checkpoints are taken).
+    #[arg(long, value_name = "MINUTES")]
+    pub checkpoint_minutes: Option<f64>,
     /// Print nothing but errors.
     #[arg(short, long)]
     pub quiet: bool,
@@ -303,6 +307,8 @@ struct Session {
     mesh: Arc<agarium_core::mesh::Mesh>,
     stops: Vec<Stop>,
     quiet: bool,
+    /// When the last checkpoint was written (for the wall-clock cadence).
+    checkpointed: Instant,
 }
 
 /// Set by the Ctrl-C handler; the step loop stops after the current step.
@@ -401,6 +407,10 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         .or(file.time_unit.clone())
         .unwrap_or_default();
     let checkpoint_every = args.checkpoint_every.or(file.checkpoint_every).unwrap_or(0);
+    let checkpoint_minutes = match args.checkpoint_minutes.or(file.checkpoint_minutes) {
+        Some(m) => Some(positive("--checkpoint-minutes", m)?),
+        None => None,
+    };
     if !model_path.is_file() {
         return Err(CliError::input(format!(
             "{}: no such model file",
@@ -502,6 +512,7 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         time_unit,
         stem,
         checkpoint_steps: checkpoint_every,
+        checkpoint_minutes,
         threads: rayon_threads(),
         started_unix: now_unix(),
         finished_unix: None,
@@ -517,6 +528,7 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
         problem,
         mesh,
         quiet: args.quiet,
+        checkpointed: Instant::now(),
     };
     let sim = Simulation::new(
         session.problem.clone(),
@@ -596,6 +608,7 @@ pub fn resume(args: &ResumeArgs) -> Result<i32, CliError> {
         mesh,
         stops,
         quiet: args.quiet,
+        checkpointed: Instant::now(),
     };
     execute(session, sim, true)
 }
@@ -620,6 +633,7 @@ fn save_checkpoint(
         .write(&session.dir.join(CHECKPOINT))
         .map_err(CliError::failure)?;
     session.manifest.checkpoint_time = Some(sim.time());
+    session.checkpointed = Instant::now();
     session.manifest.write(&session.dir)
 }
 
@@ -696,6 +710,7 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
     let mut warned = false;
     let mut failure: Option<String> = None;
     let every_steps = session.manifest.checkpoint_steps;
+    let every_seconds = session.manifest.checkpoint_minutes.map(|m| 60.0 * m);
     let stops = session.stops.clone();
     for stop in stops {
         let t = stop.t;
@@ -707,6 +722,7 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
         loop {
             let mut since_checkpoint = 0usize;
             let mut wants_checkpoint = false;
+            let checkpointed = session.checkpointed;
             let result = sim.advance_to(t, &mut |rep| {
                 let clock = Instant::now();
                 let state = rep.state.as_slice().unwrap_or(&[]);
@@ -742,7 +758,9 @@ fn execute(mut session: Session, mut sim: Simulation, resumed: bool) -> Result<i
                 if INTERRUPTED.load(Ordering::SeqCst) {
                     return Control::Stop;
                 }
-                if every_steps > 0 && since_checkpoint >= every_steps {
+                let due = every_seconds
+                    .is_some_and(|s| checkpointed.elapsed().as_secs_f64() >= s);
+                if due || (every_steps > 0 && since_checkpoint >= every_steps) {
                     wants_checkpoint = true;
                     return Control::Stop;
                 }

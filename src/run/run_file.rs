@@ -76,6 +76,8 @@ pub struct RunFile {
     pub time_unit: Option<String>,
     /// Checkpoint cadence in steps.
     pub checkpoint_every: Option<usize>,
+    /// Wall-clock checkpoint cadence in minutes.
+    pub checkpoint_minutes: Option<f64>,
     /// Times at which pictures are drawn (default: every output time).
     #[serde(default)]
     pub picture_times: Vec<f64>,
