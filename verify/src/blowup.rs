@@ -42,14 +42,7 @@ pub const CHECK: Check = Check {
 fn problem() -> Problem {
     Problem {
         species: vec![support::mobile("u", 1.0), support::mobile("c", 1.0)],
-        reactions: support::kernel(2, 2, |s, _x, _y, _t, out, jac| {
-            out[0] = 0.0;
-            out[1] = s[0] - s[1];
-            if let Some(j) = jac {
-                j[2] = 1.0;
-                j[3] = -1.0;
-            }
-        }),
+        reactions: support::keller_segel_reactions(),
         initial: support::initial(vec![
             Box::new(|x, y| 1000.0 * (-100.0 * (x * x + y * y)).exp()),
             Box::new(|x, y| 500.0 * (-50.0 * (x * x + y * y)).exp()),

@@ -55,14 +55,7 @@ fn problem(mass: f64, chi: f64) -> Problem {
                 kind: SpeciesKind::QuasiSteady { diffusion: 1.0 },
             },
         ],
-        reactions: support::kernel(2, 2, |s, _x, _y, _t, out, jac| {
-            out[0] = 0.0;
-            out[1] = s[0] - s[1];
-            if let Some(j) = jac {
-                j[2] = 1.0;
-                j[3] = -1.0;
-            }
-        }),
+        reactions: support::keller_segel_reactions(),
         initial: support::initial(vec![
             Box::new(move |x, y| mass / (2.0 * PI * var) * (-(x * x + y * y) / (2.0 * var)).exp()),
             Box::new(|_, _| 0.0),

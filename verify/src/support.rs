@@ -55,6 +55,18 @@ pub fn linear_potential(s: usize, signal: usize, chi: f64) -> Arc<dyn BatchKerne
     })
 }
 
+/// The Keller–Segel reactions of (u, c): none for the cells, c production u − c.
+pub fn keller_segel_reactions() -> Arc<dyn BatchKernel> {
+    kernel(2, 2, |s, _x, _y, _t, out, jac| {
+        out[0] = 0.0;
+        out[1] = s[0] - s[1];
+        if let Some(j) = jac {
+            j[2] = 1.0;
+            j[3] = -1.0;
+        }
+    })
+}
+
 /// A mobile species.
 pub fn mobile(name: &str, diffusion: f64) -> SpeciesSpec {
     SpeciesSpec {
