@@ -14,36 +14,15 @@
 //! several minutes). Without `--bench` (as under `cargo test --all-targets`) a smoke run on
 //! a small mesh checks that everything works. No timing assertions.
 
+mod common;
+
 use std::path::Path;
 use std::process::Command;
-use std::sync::Arc;
 use std::time::Instant;
 
-use agarium_core::geometry::{PlateSpec, Shape};
-use agarium_core::mesh::{build_mesh, Mesh, MeshOptions};
+use agarium_core::mesh::Mesh;
 use agarium_core::output::{write_vtu_as, Field, VtuEncoding};
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
-}
-
-fn disk(radius: f64, h: f64) -> Arc<Mesh> {
-    let plate = PlateSpec {
-        outer: Shape::Circle {
-            centre: [0.0, 0.0],
-            radius,
-        },
-        holes: vec![],
-        cuts: vec![],
-    };
-    let opts = MeshOptions {
-        size: h,
-        max_nodes: 3_000_000,
-        ..Default::default()
-    };
-    Arc::new(build_mesh(&plate, &opts).expect("mesh").mesh)
-}
+use common::{disk, median};
 
 /// Smooth colony-like fields (five arrays, as a four-species state with one declared field).
 fn fields(mesh: &Mesh) -> Vec<Vec<f64>> {

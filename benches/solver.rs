@@ -10,21 +10,23 @@
 //! ratios within one run, the machine is shared and noisy. Without `--bench` (as under
 //! `cargo test --all-targets`) a smoke run on a tiny mesh is done. No timing assertions.
 
+mod common;
+
 use std::alloc::{GlobalAlloc, Layout, System};
 use std::path::Path;
 use std::sync::atomic::{AtomicUsize, Ordering::Relaxed};
 use std::sync::Arc;
 use std::time::Instant;
 
-use agarium_core::geometry::{PlateSpec, Shape};
 use agarium_core::kernel::{
     BatchKernel, ClosureKernel, KernelError, KernelInput, Scratch, SensitivityForm, SpeciesKind,
 };
 use agarium_core::linalg::{LinearParams, Method};
-use agarium_core::mesh::{build_mesh, Mesh, MeshOptions};
+use agarium_core::mesh::Mesh;
 use agarium_core::problem::{ChemotaxisSpec, Problem, SpeciesSpec};
 use agarium_core::time::{Control, Coupling, Outcome, Simulation, Stats, StepperParams};
 use agarium_scripting::{Model, Overrides};
+use common::{disk, median};
 
 /// Heap bytes live now and the high-water mark since the last [`reset_peak`].
 static CURRENT: AtomicUsize = AtomicUsize::new(0);
@@ -81,11 +83,6 @@ fn reset_peak() -> usize {
     let now = CURRENT.load(Relaxed);
     PEAK.store(now, Relaxed);
     now
-}
-
-fn median(mut v: Vec<f64>) -> f64 {
-    v.sort_by(f64::total_cmp);
-    v[v.len() / 2]
 }
 
 /// A kernel with its true dependency pattern: `ClosureKernel::new` declares every derivative
@@ -280,23 +277,6 @@ fn keller_segel() -> Problem {
         }],
         diagnostics: vec![],
     }
-}
-
-fn disk(radius: f64, h: f64) -> Arc<Mesh> {
-    let plate = PlateSpec {
-        outer: Shape::Circle {
-            centre: [0.0, 0.0],
-            radius,
-        },
-        holes: vec![],
-        cuts: vec![],
-    };
-    let opts = MeshOptions {
-        size: h,
-        max_nodes: 3_000_000,
-        ..Default::default()
-    };
-    Arc::new(build_mesh(&plate, &opts).expect("mesh").mesh)
 }
 
 #[derive(Clone, Copy, PartialEq)]
