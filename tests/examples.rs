@@ -3,8 +3,12 @@
 //! pictures it asks for, a conserved combination that stays conserved, and no negative
 //! density.
 
+mod common;
+
 use std::path::{Path, PathBuf};
 use std::process::Command;
+
+use common::{diagnostics, manifest};
 
 fn run_files() -> Vec<PathBuf> {
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("examples");
@@ -23,22 +27,6 @@ fn run_files() -> Vec<PathBuf> {
     }
     files.sort();
     files
-}
-
-/// The diagnostics table as a header and rows of numbers.
-fn table(out: &Path) -> (Vec<String>, Vec<Vec<f64>>) {
-    let csv = std::fs::read_dir(out)
-        .unwrap()
-        .map(|e| e.unwrap().path())
-        .find(|p| p.to_string_lossy().ends_with("_diagnostics.csv"))
-        .expect("a diagnostics table");
-    let text = std::fs::read_to_string(csv).unwrap();
-    let mut lines = text.lines();
-    let header = lines.next().unwrap().split(',').map(String::from).collect();
-    let rows = lines
-        .map(|l| l.split(',').map(|v| v.parse().unwrap()).collect())
-        .collect();
-    (header, rows)
 }
 
 #[test]
@@ -81,12 +69,11 @@ fn every_example_runs_and_its_outputs_hold() {
             "{name}: {}",
             String::from_utf8_lossy(&o.stderr)
         );
-        let m: serde_json::Value =
-            serde_json::from_str(&std::fs::read_to_string(out.join("run.json")).unwrap()).unwrap();
+        let m = manifest(&out);
         let stem = m["stem"].as_str().unwrap();
         // Every state holds every species and declared field (the names in the .vtu XML).
         let vtu = std::fs::read_to_string(out.join(format!("{stem}_0002.vtu"))).unwrap();
-        let (header, rows) = table(&out);
+        let (header, rows) = diagnostics(&out);
         let species: Vec<&str> = header
             .iter()
             .filter_map(|c| c.strip_suffix("_integral"))

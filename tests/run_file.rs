@@ -1,16 +1,11 @@
 //! TOML run files: every run setting in one file, the command line overriding it, unknown
 //! keys refused with their line.
 
-use std::path::Path;
-use std::process::{Command, Output};
+mod common;
 
-fn agarium(args: &[&str], dir: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_agarium"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("run agarium")
-}
+use std::path::Path;
+
+use common::{agarium, manifest, parameter};
 
 fn run_file(dir: &Path, extra: &str) -> String {
     let model = concat!(env!("CARGO_MANIFEST_DIR"), "/models/colony_4species.rhai");
@@ -41,10 +36,6 @@ rtol = 1e-4
     path.display().to_string()
 }
 
-fn manifest(dir: &Path) -> serde_json::Value {
-    serde_json::from_str(&std::fs::read_to_string(dir.join("run.json")).unwrap()).unwrap()
-}
-
 #[test]
 fn a_run_file_sets_everything_and_the_command_line_overrides_it() {
     let dir = tempfile::tempdir().unwrap();
@@ -59,14 +50,7 @@ fn a_run_file_sets_everything_and_the_command_line_overrides_it() {
     assert_eq!(m["solver"]["rtol"], 1e-4);
     assert_eq!(m["mesh"]["size"], 0.4);
     assert_eq!(m["plate"]["cuts"][0]["offset"], 3.0);
-    let chi = m["parameters"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .find(|p| p[0] == "chi_0")
-        .unwrap()[1]
-        .as_f64();
-    assert_eq!(chi, Some(0.3));
+    assert_eq!(parameter(&m, "chi_0"), Some(0.3));
     assert!(out.join("colony_4species_0002.vtu").exists());
 
     let o = agarium(
@@ -88,14 +72,7 @@ fn a_run_file_sets_everything_and_the_command_line_overrides_it() {
     let m = manifest(&out);
     assert_eq!(m["end"], 0.5);
     assert_eq!(m["solver"]["rtol"], 1e-3);
-    let chi = m["parameters"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .find(|p| p[0] == "chi_0")
-        .unwrap()[1]
-        .as_f64();
-    assert_eq!(chi, Some(0.5));
+    assert_eq!(parameter(&m, "chi_0"), Some(0.5));
 }
 
 #[test]

@@ -2,19 +2,14 @@
 //! `--inoculum` on the command line. The amount of cells placed is checked against the
 //! integrals of the spot profiles, and mistakes are reported where they were written.
 
+mod common;
+
 use std::f64::consts::PI;
 use std::path::Path;
-use std::process::{Command, Output};
+
+use common::{agarium, diagnostics, manifest};
 
 const MODEL: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/models/colony_4species.rhai");
-
-fn agarium(args: &[&str], dir: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_agarium"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("run agarium")
-}
 
 fn write(dir: &Path, text: &str) -> String {
     let path = dir.join("spots.toml");
@@ -24,29 +19,12 @@ fn write(dir: &Path, text: &str) -> String {
 
 /// The t = 0 row of the diagnostics table as (column, value) pairs.
 fn first_row(out: &Path) -> Vec<(String, f64)> {
-    let text = std::fs::read_to_string(out.join("colony_4species_diagnostics.csv")).unwrap();
-    let mut lines = text.lines();
-    let header: Vec<String> = lines
-        .next()
-        .unwrap()
-        .split(',')
-        .map(str::to_string)
-        .collect();
-    let row: Vec<f64> = lines
-        .next()
-        .unwrap()
-        .split(',')
-        .map(|v| v.parse().unwrap())
-        .collect();
-    header.into_iter().zip(row).collect()
+    let (header, rows) = diagnostics(out);
+    header.into_iter().zip(rows[0].iter().copied()).collect()
 }
 
 fn column(row: &[(String, f64)], name: &str) -> f64 {
     row.iter().find(|(n, _)| n == name).unwrap().1
-}
-
-fn manifest(out: &Path) -> serde_json::Value {
-    serde_json::from_str(&std::fs::read_to_string(out.join("run.json")).unwrap()).unwrap()
 }
 
 const PLATE: &str = r#"end = 0.1

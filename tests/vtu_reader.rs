@@ -3,7 +3,7 @@
 //! match what `agarium mesh` reported.
 
 use std::path::Path;
-use std::process::Command;
+use std::process::{Command, Output};
 
 const READER: &str = r#"
 import json, sys
@@ -56,19 +56,25 @@ fn python_with_readers() -> Option<String> {
     }
 }
 
-fn mesh(dir: &Path, args: &[&str]) -> serde_json::Value {
-    let mut all = vec!["mesh"];
-    all.extend(args);
-    all.extend(["-o", "m.vtu", "--json"]);
-    let out = Command::new(env!("CARGO_BIN_EXE_agarium"))
-        .args(&all)
-        .current_dir(dir)
-        .output()
-        .unwrap();
+/// Runs `cmd`, insisting that it succeeds (its stderr is the failure message).
+fn succeed(cmd: &mut Command) -> Output {
+    let out = cmd.output().expect("start the command");
     assert!(
         out.status.success(),
         "{}",
         String::from_utf8_lossy(&out.stderr)
+    );
+    out
+}
+
+fn mesh(dir: &Path, args: &[&str]) -> serde_json::Value {
+    let mut all = vec!["mesh"];
+    all.extend(args);
+    all.extend(["-o", "m.vtu", "--json"]);
+    let out = succeed(
+        Command::new(env!("CARGO_BIN_EXE_agarium"))
+            .args(&all)
+            .current_dir(dir),
     );
     serde_json::from_slice(&out.stdout).unwrap()
 }
@@ -90,15 +96,10 @@ fn independent_readers_agree_with_the_report() {
             "1",
         ],
     );
-    let out = Command::new(&python)
-        .args(["-c", READER, "m.vtu"])
-        .current_dir(dir.path())
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "reader failed: {}",
-        String::from_utf8_lossy(&out.stderr)
+    let out = succeed(
+        Command::new(&python)
+            .args(["-c", READER, "m.vtu"])
+            .current_dir(dir.path()),
     );
     let got: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let nodes = report["nodes"].as_u64().unwrap();
@@ -164,15 +165,10 @@ fn independent_readers_read_run_states() {
         .unwrap();
     let err = String::from_utf8_lossy(&out.stderr).into_owned();
     assert!(out.status.success(), "{err}");
-    let read = Command::new(&python)
-        .args(["-c", RUN_READER])
-        .arg(dir.path().join("r/colony_4species_0001.vtu"))
-        .output()
-        .unwrap();
-    assert!(
-        read.status.success(),
-        "{}",
-        String::from_utf8_lossy(&read.stderr)
+    let read = succeed(
+        Command::new(&python)
+            .args(["-c", RUN_READER])
+            .arg(dir.path().join("r/colony_4species_0001.vtu")),
     );
     let v: serde_json::Value = serde_json::from_slice(&read.stdout).unwrap();
     let names: Vec<&str> = v["names"]
@@ -283,27 +279,17 @@ fn series_index_and_compressed_states_read_back_identically() {
             "0.5", "--every", "0.25", "-q", "-o", folder,
         ];
         args.extend(extra);
-        let out = Command::new(env!("CARGO_BIN_EXE_agarium"))
-            .env("RAYON_NUM_THREADS", "1")
-            .args(&args)
-            .current_dir(dir.path())
-            .output()
-            .unwrap();
-        assert!(
-            out.status.success(),
-            "{}",
-            String::from_utf8_lossy(&out.stderr)
+        succeed(
+            Command::new(env!("CARGO_BIN_EXE_agarium"))
+                .env("RAYON_NUM_THREADS", "1")
+                .args(&args)
+                .current_dir(dir.path()),
         );
     }
-    let read = Command::new(&python)
-        .args(["-c", SERIES_READER, "plain", "zlib"])
-        .current_dir(dir.path())
-        .output()
-        .unwrap();
-    assert!(
-        read.status.success(),
-        "{}",
-        String::from_utf8_lossy(&read.stderr)
+    let read = succeed(
+        Command::new(&python)
+            .args(["-c", SERIES_READER, "plain", "zlib"])
+            .current_dir(dir.path()),
     );
     let v: serde_json::Value = serde_json::from_slice(&read.stdout).unwrap();
     // The diagnostics table, parsed by Python's csv module: the documented columns, one row
