@@ -63,16 +63,17 @@ fn spawn(out: &Path, extra: &[&str]) -> Child {
 }
 
 /// Waits until the run has written a checkpoint past t = 0 (or ended).
-fn wait_for_checkpoint(child: &mut Child, out: &Path) {
+/// Returns the time of that checkpoint, or `None` when the run ended first.
+fn wait_for_checkpoint(child: &mut Child, out: &Path) -> Option<f64> {
     let deadline = Instant::now() + Duration::from_secs(120);
     while Instant::now() < deadline {
         if child.try_wait().unwrap().is_some() {
-            return;
+            return None;
         }
         if let Ok(text) = std::fs::read_to_string(out.join("run.json")) {
             let v: serde_json::Value = serde_json::from_str(&text).unwrap_or_default();
-            if v["checkpoint_time"].as_f64().is_some_and(|t| t > 0.0) {
-                return;
+            if let Some(t) = v["checkpoint_time"].as_f64().filter(|&t| t > 0.0) {
+                return Some(t);
             }
         }
         std::thread::sleep(Duration::from_millis(20));
@@ -136,7 +137,14 @@ fn ctrl_c_exits_130_with_a_checkpoint_and_the_run_resumes() {
     let out = dir.path().join("i");
     // Wall-clock checkpoints every ~0.01 s: when they are taken must not change the result.
     let mut child = spawn(&out, &["--checkpoint-minutes", "0.0002"]);
-    wait_for_checkpoint(&mut child, &out);
+    if let Some(t) = wait_for_checkpoint(&mut child, &out) {
+        // Without the wall-clock cadence the first checkpoint after t = 0 would be the
+        // output time 4.
+        assert!(
+            t != 4.0 && t != 8.0,
+            "first checkpoint at the output time {t}"
+        );
+    }
     if child.try_wait().unwrap().is_none() {
         let status = Command::new("kill")
             .args(["-INT", &child.id().to_string()])
