@@ -173,6 +173,20 @@ impl InitialOverrides {
         Ok(out)
     }
 
+    /// The final expressions a run recorded in its manifest (`file`), for a resume.
+    pub fn recorded(expressions: &BTreeMap<String, String>, file: &str) -> Self {
+        let mut out = InitialOverrides::default();
+        for (name, expr) in expressions {
+            let at = SourcePos {
+                file: format!("{file} (initial.{name})"),
+                line: 0,
+                column: 0,
+            };
+            out.entry(name).expr = Some((expr.clone(), at));
+        }
+        out
+    }
+
     fn entry(&mut self, name: &str) -> &mut SpeciesInitial {
         self.species.entry(name.to_string()).or_default()
     }

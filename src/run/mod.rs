@@ -557,20 +557,10 @@ pub fn resume(args: &ResumeArgs) -> Result<i32, CliError> {
         )));
     }
     let checkpoint = Checkpoint::read(&dir.join(CHECKPOINT)).map_err(CliError::input)?;
-    let mut initial = InitialOverrides::default();
-    for (name, expr) in &manifest.initial {
-        initial.species.entry(name.clone()).or_default().expr = Some((
-            expr.clone(),
-            agarium_scripting::SourcePos {
-                file: format!(
-                    "{} (initial.{name})",
-                    dir.join(manifest::MANIFEST).display()
-                ),
-                line: 0,
-                column: 0,
-            },
-        ));
-    }
+    let initial = InitialOverrides::recorded(
+        &manifest.initial,
+        &dir.join(manifest::MANIFEST).display().to_string(),
+    );
     let (_, problem) = model_problem(
         &manifest.model_file,
         &manifest.model_text,
