@@ -8,10 +8,14 @@
 
 mod blowup;
 mod checkpoint;
+mod failure;
+mod newton;
 mod params;
+mod scheme;
 mod simulation;
 
 pub use blowup::{BlowupKind, BlowupReport};
 pub use checkpoint::{Checkpoint, CheckpointError};
+pub use failure::SolveError;
 pub use params::{BlowupParams, Coupling, Scheme, StepperParams};
-pub use simulation::{Control, Outcome, Simulation, SolveError, Stats, StepReport};
+pub use simulation::{Control, Outcome, Simulation, Stats, StepReport};
