@@ -33,6 +33,16 @@ pub(super) fn system(disc: &Discretisation, species: Vec<usize>, params: &Steppe
     }
 }
 
+/// What the nonlinear solve of one step did.
+#[derive(Clone, Copy, Debug, Default)]
+pub(super) struct StepSolve {
+    /// Newton iterations (linear solves per species in the linearly implicit mode).
+    pub iterations: usize,
+    /// Error-weighted RMS norm of what the solve leaves undone (the splitting defect of the
+    /// linearly implicit mode; 0 for Newton), in the units of the local error estimate.
+    pub defect: f64,
+}
+
 impl Simulation {
     /// Solves the step equations at `t_new` in place (u holds the initial guess).
     pub(super) fn solve_step(
@@ -40,12 +50,15 @@ impl Simulation {
         u: &mut [f64],
         t_new: f64,
         time: TimeTerm<'_>,
-    ) -> Result<usize, Failure> {
+    ) -> Result<StepSolve, Failure> {
         let max = self.params.max_newton;
         if let Some(mut sys) = self.coupled.take() {
             let r = self.newton(&mut sys, u, t_new, time, self.params.newton_tol, max);
             self.coupled = Some(sys);
-            return r;
+            return r.map(|iterations| StepSolve {
+                iterations,
+                defect: 0.0,
+            });
         }
         let mut systems = std::mem::take(&mut self.segregated);
         let mut total = 0;
@@ -61,7 +74,10 @@ impl Simulation {
             }
         }
         self.segregated = systems;
-        result.map(|_| total)
+        result.map(|_| StepSolve {
+            iterations: total,
+            defect: 0.0,
+        })
     }
 
     /// Error-weighted RMS of the residual rows of `sys`, each row divided by its node's mass

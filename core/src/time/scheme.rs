@@ -7,6 +7,41 @@ use super::Scheme;
 use crate::fem::TimeTerm;
 
 impl Simulation {
+    /// The starting guess of the nonlinear solve at `t_new`: the polynomial through the last
+    /// `order + 1` accepted states (fewer at the start), extrapolated. Its weights sum to one,
+    /// so it keeps every linear invariant of the accepted states; values that extrapolate
+    /// below zero from a non-negative state are clamped to zero (the first Newton update
+    /// restores the invariants whatever the start, see `newton.rs`).
+    pub(super) fn predictor(&self, t_new: f64, order: usize) -> Vec<f64> {
+        let hlen = self.history.len();
+        let points = hlen.min(order + 1);
+        let newest = &self.history[hlen - 1].1;
+        if points < 2 {
+            return newest.clone();
+        }
+        let past = &self.history[hlen - points..];
+        let weights: Vec<f64> = (0..points)
+            .map(|a| {
+                (0..points)
+                    .filter(|&b| b != a)
+                    .map(|b| (t_new - past[b].0) / (past[a].0 - past[b].0))
+                    .product()
+            })
+            .collect();
+        let mut u = vec![0.0; newest.len()];
+        for (w, (_, state)) in weights.iter().zip(past) {
+            for (ui, si) in u.iter_mut().zip(state) {
+                *ui += w * si;
+            }
+        }
+        for (ui, &last) in u.iter_mut().zip(newest) {
+            if *ui < 0.0 && last >= 0.0 {
+                *ui = 0.0;
+            }
+        }
+        u
+    }
+
     /// One step attempt of size dt from the newest state: the new state, Newton iterations
     /// and the factor for the next step; or the failure and the factor to retry with.
     pub(super) fn attempt(&mut self, dt: f64) -> Result<(Vec<f64>, usize, f64), (Failure, f64)> {
@@ -34,10 +69,11 @@ impl Simulation {
             }
         }
         let time = TimeTerm { coef, hist: &hist };
-        let mut u = un.clone();
-        let iterations = self
+        let mut u = self.predictor(t + dt, if bdf2 { 2 } else { 1 });
+        let solved = self
             .solve_step(&mut u, t + dt, time)
             .map_err(|f| (f, 0.25))?;
+        let iterations = solved.iterations;
         if u.iter().any(|v| !v.is_finite()) {
             return Err((Failure::NonFinite, 0.25));
         }
@@ -88,11 +124,13 @@ impl Simulation {
                 count += 1;
             }
         }
+        // What the nonlinear solve left undone (the linearly implicit mode's splitting
+        // defect) is error the controller must see as well.
         let err = if count > 0 {
             (sum / count as f64).sqrt()
         } else {
             0.0
-        };
+        } + solved.defect;
         let p = f64::from(order as u8);
         let factor = if err > 0.0 {
             0.9 * err.powf(-1.0 / (p + 1.0))
