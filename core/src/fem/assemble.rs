@@ -23,7 +23,7 @@ use crate::kernel::{BatchKernel, KernelError, KernelInput, Scratch, SensitivityF
 use crate::mesh::Mesh;
 use crate::problem::Problem;
 
-use super::bernoulli::bernoulli;
+use super::bernoulli::bernoulli_pair;
 use super::pattern::{BlockKind, BlockLayout, NodeGraph};
 
 /// Cells below this value are clamped when the mobility's q = f/u is evaluated.
@@ -146,6 +146,11 @@ impl Discretisation {
         self.mass.len()
     }
 
+    /// Kind of species `s`.
+    pub fn kind(&self, s: usize) -> SpeciesKind {
+        self.kinds[s]
+    }
+
     /// Block kind of the coupled Jacobian between species r's equation and species s.
     pub fn block_kind(&self, r: usize, s: usize) -> BlockKind {
         if let Some(t) = self.transports.iter().find(|t| t.species == r) {
@@ -175,6 +180,21 @@ impl Discretisation {
         t: f64,
         jac: bool,
         ws: &mut Workspace,
+    ) -> Result<(), KernelError> {
+        self.evaluate_for(problem, u, t, jac, ws, None)
+    }
+
+    /// As [`Discretisation::evaluate`], but when `species` is given only the kernels the
+    /// rows of those species need (the reactions and the chemotaxis terms moving them), so a
+    /// per-species solve does not pay for the others' transport.
+    pub fn evaluate_for(
+        &self,
+        problem: &Problem,
+        u: &[f64],
+        t: f64,
+        jac: bool,
+        ws: &mut Workspace,
+        species: Option<&[usize]>,
     ) -> Result<(), KernelError> {
         let n = self.nodes();
         let sc = problem.n_species();
@@ -212,6 +232,9 @@ impl Discretisation {
             &mut ws.scratch,
         )?;
         for (c, term) in problem.chemotaxis.iter().enumerate() {
+            if species.is_some_and(|only| !only.contains(&term.cells)) {
+                continue;
+            }
             run(
                 &*term.sensitivity,
                 &input,
@@ -278,16 +301,35 @@ impl Discretisation {
         time: TimeTerm<'_>,
         ws: &mut Workspace,
         residual: &mut [f64],
+        jac: Option<(&BlockLayout, &mut [f64])>,
+    ) {
+        self.assemble_for(problem, u, time, ws, residual, jac, None);
+    }
+
+    /// As [`Discretisation::assemble`], but when `species` is given only their residual rows
+    /// are written (the others are left as they are) and only their transport is assembled;
+    /// the kernels must have been evaluated for at least those species
+    /// ([`Discretisation::evaluate_for`]).
+    #[allow(clippy::too_many_arguments)]
+    pub fn assemble_for(
+        &self,
+        problem: &Problem,
+        u: &[f64],
+        time: TimeTerm<'_>,
+        ws: &mut Workspace,
+        residual: &mut [f64],
         mut jac: Option<(&BlockLayout, &mut [f64])>,
+        species: Option<&[usize]>,
     ) {
         let n = self.nodes();
         let sc = problem.n_species();
         let g = &self.graph;
+        let wanted = |r: usize| species.is_none_or(|only| only.contains(&r));
         if let Some((_, vals)) = jac.as_mut() {
             vals.iter_mut().for_each(|v| *v = 0.0);
         }
         // Node terms: time derivative and reactions.
-        for r in 0..sc {
+        for r in (0..sc).filter(|&r| wanted(r)) {
             let steady = matches!(self.kinds[r], SpeciesKind::QuasiSteady { .. });
             for i in 0..n {
                 let m = self.mass[i];
@@ -324,7 +366,7 @@ impl Discretisation {
                 }
             }
         }
-        for tr in &self.transports {
+        for tr in self.transports.iter().filter(|tr| wanted(tr.species)) {
             self.assemble_transport(
                 problem,
                 tr,
@@ -443,8 +485,7 @@ impl Discretisation {
                 let (dbm, dbp);
                 if d > 0.0 {
                     let x = total / d;
-                    let (bm, dm) = bernoulli(-x);
-                    let (bp, dp) = bernoulli(x);
+                    let [(bp, dp), (bm, dm)] = bernoulli_pair(x);
                     (dbm, dbp) = (dm, dp);
                     flux = w * d * (bm * ui - bp * uj);
                     acc_i[r] += w * d * bm;

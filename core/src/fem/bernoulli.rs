@@ -17,10 +17,28 @@ fn positive(x: f64) -> (f64, f64) {
             -0.5 + x / 6.0 - x2 * x / 180.0,
         )
     } else {
-        let b = x / x.exp_m1();
-        // B' = B (1/x − 1/(1 − e^{−x})), finite for every x > 0 (B → 0 as x → ∞).
-        let d = b * (1.0 / x + 1.0 / (-x).exp_m1());
+        let em1 = x.exp_m1();
+        let b = x / em1;
+        // B' = B (1/x − 1/(1 − e^{−x})) with 1 − e^{−x} = (eˣ − 1)/eˣ, so one exponential
+        // serves both; finite for every x > 0 (B → 0 as x → ∞; eˣ − 1 = ∞ gives B = 0).
+        let d = if em1.is_finite() {
+            b * (1.0 / x - (1.0 + em1) / em1)
+        } else {
+            0.0
+        };
         (b, d)
+    }
+}
+
+/// `[(B(x), B'(x)), (B(−x), B'(−x))]` from one evaluation at |x|, through B(−x) = B(x) + x
+/// and B'(−x) = −B'(x) − 1 (the flux of an edge needs both).
+pub fn bernoulli_pair(x: f64) -> [(f64, f64); 2] {
+    let (b, d) = positive(x.abs());
+    let mirrored = (b + x.abs(), -d - 1.0);
+    if x >= 0.0 {
+        [(b, d), mirrored]
+    } else {
+        [mirrored, (b, d)]
     }
 }
 
@@ -74,6 +92,20 @@ mod tests {
             assert!((bm - (b + x)).abs() <= 1e-13 * bm.abs().max(1.0), "{x}");
         }
         assert_eq!(bernoulli(0.0), (1.0, -0.5));
+    }
+
+    #[test]
+    fn pair_equals_two_single_evaluations() {
+        for &x in &[
+            -40.0, -3.0, -0.2, -1e-4, 0.0, 1e-4, 0.2, 3.0, 40.0, 800.0, -800.0,
+        ] {
+            let [p, m] = bernoulli_pair(x);
+            let (b, d) = bernoulli(x);
+            let (bm, dm) = bernoulli(-x);
+            let close = |a: f64, b: f64| (a - b).abs() <= 1e-14 * a.abs().max(1.0);
+            assert!(close(p.0, b) && close(p.1, d), "{x}: {p:?} vs {b}, {d}");
+            assert!(close(m.0, bm) && close(m.1, dm), "{x}: {m:?} vs {bm}, {dm}");
+        }
     }
 
     #[test]

@@ -1,5 +1,6 @@
 //! The simulation value and its step loop.
 
+use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::Arc;
 
 use ndarray::ArrayView2;
@@ -7,7 +8,7 @@ use ndarray::ArrayView2;
 use super::blowup::{BlowupReport, Monitor};
 use super::checkpoint::{Checkpoint, CheckpointError, Meta};
 use super::failure::{Failure, SolveError};
-use super::newton::{system, System};
+use super::newton::{lagged_order, system, Buffers, System};
 use super::{Coupling, StepperParams};
 use crate::fem::{Discretisation, TimeTerm, Workspace};
 use crate::kernel::{KernelInput, Scratch, SpeciesKind};
@@ -81,6 +82,11 @@ pub struct Simulation {
     pub(super) coupled: Option<System>,
     pub(super) segregated: Vec<System>,
     pub(super) ws: Workspace,
+    /// Vectors of the nonlinear solve, reused every step.
+    pub(super) buffers: Buffers,
+    /// Checkpoints taken so far: preconditioners kept frozen across steps are rebuilt at
+    /// the first Jacobian after one, so a run resumed from it repeats the same solves.
+    pub(super) checkpoints: AtomicU64,
     pub(super) monitor: Monitor,
     /// Redo the next attempt with backward Euler (after a BDF2 step left the positive cone).
     pub(super) force_euler: bool,
@@ -138,16 +144,19 @@ impl Simulation {
             });
         }
         let all: Vec<usize> = (0..sc).collect();
+        let chemotactic: Vec<bool> = (0..sc)
+            .map(|s| problem.chemotaxis.iter().any(|c| c.cells == s))
+            .collect();
         let (coupled, segregated) = match params.coupling {
             Coupling::Newton => (Some(system(&disc, all, &params)), Vec::new()),
             Coupling::Lagged => (
                 None,
-                (0..sc).map(|s| system(&disc, vec![s], &params)).collect(),
+                lagged_order(&disc, &chemotactic)
+                    .into_iter()
+                    .map(|s| system(&disc, vec![s], &params))
+                    .collect(),
             ),
         };
-        let chemotactic = (0..sc)
-            .map(|s| problem.chemotaxis.iter().any(|c| c.cells == s))
-            .collect();
         let monitor = Monitor::new(params.blowup.clone(), &mesh, chemotactic, &u0);
         let mut sim = Simulation {
             problem,
@@ -162,6 +171,8 @@ impl Simulation {
             coupled,
             segregated,
             ws: Workspace::default(),
+            buffers: Buffers::default(),
+            checkpoints: AtomicU64::new(0),
             monitor,
             force_euler: false,
             t_start: t0,
@@ -250,6 +261,7 @@ impl Simulation {
 
     /// Everything needed to continue this run exactly as if it had not stopped.
     pub fn checkpoint(&self) -> Checkpoint {
+        self.checkpoints.fetch_add(1, Ordering::Relaxed);
         Checkpoint {
             meta: Meta {
                 species: self.names.clone(),
