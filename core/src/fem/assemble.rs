@@ -399,6 +399,16 @@ impl Discretisation {
         let mut acc_i = vec![0.0; sc];
         let mut acc_j = vec![0.0; sc];
         let want_jac = jac.as_ref().is_some_and(|(l, _)| l.slot(r).is_some());
+        // The graph blocks of this row species in the system (a dependency whose species is
+        // not an unknown of the system has none).
+        let bases: Vec<(usize, &[usize])> = match jac.as_ref() {
+            Some((layout, _)) if want_jac => tr
+                .deps
+                .iter()
+                .filter_map(|&s| layout.graph_base(r, s).map(|b| (s, b)))
+                .collect(),
+            _ => Vec::new(),
+        };
         for (e, &[i, j]) in self.edges.iter().enumerate() {
             let w = self.weights[e];
             let (ui, uj) = (u[r * n + i], u[r * n + j]);
@@ -513,23 +523,16 @@ impl Discretisation {
             residual[r * n + i] += flux;
             residual[r * n + j] -= flux;
             if want_jac {
-                let Some((layout, vals)) = jac.as_mut() else {
+                let Some((_, vals)) = jac.as_mut() else {
                     continue;
                 };
                 let [kij, kji] = g.edge_slots[e];
-                for &s in &tr.deps {
-                    if let Some(p) = layout.pos(g, r, s, i, g.diag[i]) {
-                        vals[p] += acc_i[s];
-                    }
-                    if let Some(p) = layout.pos(g, r, s, i, kij) {
-                        vals[p] += acc_j[s];
-                    }
-                    if let Some(p) = layout.pos(g, r, s, j, kji) {
-                        vals[p] -= acc_i[s];
-                    }
-                    if let Some(p) = layout.pos(g, r, s, j, g.diag[j]) {
-                        vals[p] -= acc_j[s];
-                    }
+                for &(s, base) in &bases {
+                    let (bi, bj) = (base[i], base[j]);
+                    vals[bi + g.diag[i]] += acc_i[s];
+                    vals[bi + kij] += acc_j[s];
+                    vals[bj + kji] -= acc_i[s];
+                    vals[bj + g.diag[j]] -= acc_j[s];
                 }
             }
         }

@@ -104,6 +104,9 @@ pub struct BlockLayout {
     diag_before: Vec<Vec<usize>>,
     /// Start of each global row.
     row_start: Vec<usize>,
+    /// `graph_base[r][s][i]`: position of the (r, s) graph block's first entry in row i
+    /// (empty for other block kinds), so the assembler finds an edge's entries with one add.
+    graph_base: Vec<Vec<Vec<usize>>>,
 }
 
 impl BlockLayout {
@@ -157,6 +160,22 @@ impl BlockLayout {
                 row_start.push(last + g * graph.row_len(i) + d);
             }
         }
+        let mut graph_base = vec![vec![Vec::new(); n_species]; n_species];
+        for &r in species {
+            for &s in species {
+                if kinds[r][s] != BlockKind::Graph {
+                    continue;
+                }
+                let k = slot[r].unwrap_or(0);
+                graph_base[r][s] = (0..nodes)
+                    .map(|i| {
+                        row_start[k * nodes + i]
+                            + diag_before[r][s]
+                            + graph_before[r][s] * graph.row_len(i)
+                    })
+                    .collect();
+            }
+        }
         Self {
             nodes,
             slot,
@@ -164,7 +183,15 @@ impl BlockLayout {
             graph_before,
             diag_before,
             row_start,
+            graph_base,
         }
+    }
+
+    /// For a graph block (r, s) of this system, the position of its first entry in each
+    /// row: entry (i, offset k in the node graph's row i) is at `base[i] + k`.
+    pub fn graph_base(&self, r: usize, s: usize) -> Option<&[usize]> {
+        let b = &self.graph_base[r][s];
+        (!b.is_empty()).then_some(b.as_slice())
     }
 
     /// Unknowns.
@@ -301,6 +328,19 @@ mod tests {
                             }
                         }
                     }
+                }
+            }
+        }
+        for r in 0..3 {
+            for s in 0..3 {
+                if let Some(base) = layout.graph_base(r, s) {
+                    for i in 0..n {
+                        for k in 0..g.row_len(i) {
+                            assert_eq!(Some(base[i] + k), layout.pos(&g, r, s, i, k));
+                        }
+                    }
+                } else {
+                    assert_ne!(layout.kind(r, s), BlockKind::Graph);
                 }
             }
         }
