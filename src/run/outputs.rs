@@ -226,6 +226,13 @@ pub(crate) fn summary(
         seconds,
         100.0 * output_seconds / seconds.max(1e-12)
     );
+    if s.linear_iterations > 0 {
+        eprintln!(
+            "  {} Krylov iterations ({:.1} per linear solve)",
+            s.linear_iterations,
+            s.linear_iterations as f64 / s.linear_solves.max(1) as f64
+        );
+    }
     eprintln!(
         "  {:<20} {:>14} {:>14} {:>14}",
         "species", "integral", "min", "max"
