@@ -10,7 +10,13 @@
 //!
 //! Hand-written: no maintained Rust crate provides algebraic multigrid on `sprs` matrices.
 //! On new values with the same pattern ([`Amg::refresh`]) the aggregates are kept and only
-//! the numeric part (smoothed P, Galerkin products, coarse LU) is redone.
+//! the numeric part (smoothed P, Galerkin products, coarse LU) is redone; [`Amg::update`]
+//! keeps even that and refreshes only the finest level's smoother data, so the cycle smooths
+//! and forms residuals with the new fine matrix on the old coarse hierarchy.
+//!
+//! Kernels: each level stores where every row's diagonal sits and its inverse, so a
+//! Gauss–Seidel row is two branch-free loops and one multiplication; the restriction R = Pᵀ
+//! is stored as its own CSR matrix (a contiguous row-by-row pass).
 
 use super::direct::DirectLu;
 use super::ops::Csr;
@@ -32,11 +38,14 @@ struct Level {
     /// Aggregate of each node (kept for refresh).
     aggregates: Vec<usize>,
     /// Smoothed prolongator; its pattern is fixed by A's pattern and the aggregates, so
-    /// refresh rewrites only its values. Restriction is Pᵀ applied by scatter (no copy).
+    /// refresh rewrites only its values.
     p: Csr,
-    /// Pᵀ as an index: for coarse row I, `(fine row, position in p.val)` pairs.
-    tptr: Vec<usize>,
-    tidx: Vec<(usize, usize)>,
+    /// Restriction R = Pᵀ as CSR (coarse rows, fine columns in increasing order), and for
+    /// each of its entries the position of the same value in `p.val`.
+    r: Csr,
+    rpos: Vec<usize>,
+    /// Gauss–Seidel data of this level's matrix.
+    sm: Smoother,
     /// Unknowns, right-hand side, residual of this level's cycle, and its diagonal.
     x: Vec<f64>,
     b: Vec<f64>,
@@ -47,7 +56,52 @@ struct Level {
 enum Coarse {
     Lu(Box<DirectLu>),
     /// The coarsest matrix could not be factored (e.g. singular): smooth instead.
-    Smooth,
+    Smooth(Smoother),
+}
+
+/// Gauss–Seidel data of one matrix: the position of each row's diagonal entry in the
+/// matrix's storage and its inverse (0 for a row without a usable diagonal, whose unknown
+/// the sweep then sets to 0).
+struct Smoother {
+    dpos: Vec<usize>,
+    inv: Vec<f64>,
+}
+
+impl Smoother {
+    /// No rows (a placeholder).
+    fn empty() -> Self {
+        Self {
+            dpos: Vec::new(),
+            inv: Vec::new(),
+        }
+    }
+
+    fn new(a: &Csr) -> Self {
+        let dpos = (0..a.n)
+            .map(|i| {
+                let (c, _) = a.row(i);
+                c.binary_search(&i).map(|k| a.ptr[i] + k).unwrap_or(NONE)
+            })
+            .collect();
+        let mut sm = Self {
+            dpos,
+            inv: vec![0.0; a.n],
+        };
+        sm.refresh(a);
+        sm
+    }
+
+    /// New values on the same pattern.
+    fn refresh(&mut self, a: &Csr) {
+        for (inv, &d) in self.inv.iter_mut().zip(&self.dpos) {
+            let v = if d == NONE { 0.0 } else { a.val[d] };
+            *inv = if v != 0.0 && v.is_finite() {
+                1.0 / v
+            } else {
+                0.0
+            };
+        }
+    }
 }
 
 /// A multigrid hierarchy for one matrix pattern.
@@ -146,35 +200,46 @@ fn prolongator_pattern(a: &Csr, agg: &[usize], nc: usize) -> Csr {
     p
 }
 
-/// Pᵀ as an index over P's storage.
-fn transpose_index(p: &Csr) -> (Vec<usize>, Vec<(usize, usize)>) {
-    let mut tptr = vec![0usize; p.ncols + 1];
+/// R = Pᵀ as CSR (pattern and values) and the position in `p.val` of each of its entries.
+fn transpose(p: &Csr) -> (Csr, Vec<usize>) {
+    let mut ptr = vec![0usize; p.ncols + 1];
     for &j in &p.col {
-        tptr[j + 1] += 1;
+        ptr[j + 1] += 1;
     }
     for j in 0..p.ncols {
-        tptr[j + 1] += tptr[j];
+        ptr[j + 1] += ptr[j];
     }
-    let mut fill = tptr.clone();
-    let mut tidx = vec![(0, 0); p.col.len()];
+    let mut fill = ptr.clone();
+    let mut col = vec![0; p.col.len()];
+    let mut rpos = vec![0; p.col.len()];
     for i in 0..p.n {
         for q in p.ptr[i]..p.ptr[i + 1] {
             let j = p.col[q];
-            tidx[fill[j]] = (i, q);
+            col[fill[j]] = i;
+            rpos[fill[j]] = q;
             fill[j] += 1;
         }
     }
-    (tptr, tidx)
+    let val = rpos.iter().map(|&q| p.val[q]).collect();
+    let r = Csr {
+        n: p.ncols,
+        ncols: p.n,
+        ptr,
+        col,
+        val,
+    };
+    (r, rpos)
 }
 
-/// Pattern of the Galerkin product Pᵀ A P (rows sorted).
-fn galerkin_pattern(
-    a: &Csr,
-    p: &Csr,
-    tptr: &[usize],
-    tidx: &[(usize, usize)],
-    mark: &mut [usize],
-) -> Csr {
+/// R's values from P's (after P's values changed).
+fn restriction_values(p: &Csr, r: &mut Csr, rpos: &[usize]) {
+    for (v, &q) in r.val.iter_mut().zip(rpos) {
+        *v = p.val[q];
+    }
+}
+
+/// Pattern of the Galerkin product R A P (rows sorted).
+fn galerkin_pattern(a: &Csr, p: &Csr, r: &Csr, mark: &mut [usize]) -> Csr {
     let nc = p.ncols;
     let mut ac = Csr::empty();
     ac.n = nc;
@@ -183,7 +248,7 @@ fn galerkin_pattern(
     ac.ptr.push(0);
     for big_i in 0..nc {
         let start = ac.col.len();
-        for &(i, _) in &tidx[tptr[big_i]..tptr[big_i + 1]] {
+        for &i in r.row(big_i).0 {
             for &k in a.row(i).0 {
                 for &j in p.row(k).0 {
                     if mark[j] != big_i {
@@ -252,23 +317,16 @@ fn prolongator_values(
     Ok(())
 }
 
-/// Values of Pᵀ A P into `ac`'s fixed pattern.
-fn galerkin_values(
-    a: &Csr,
-    p: &Csr,
-    tptr: &[usize],
-    tidx: &[(usize, usize)],
-    ac: &mut Csr,
-    mark: &mut [usize],
-) {
+/// Values of R A P into `ac`'s fixed pattern.
+fn galerkin_values(a: &Csr, p: &Csr, r: &Csr, ac: &mut Csr, mark: &mut [usize]) {
     for big_i in 0..ac.n {
         let (lo, hi) = (ac.ptr[big_i], ac.ptr[big_i + 1]);
         for q in lo..hi {
             mark[ac.col[q]] = q;
             ac.val[q] = 0.0;
         }
-        for &(i, pq) in &tidx[tptr[big_i]..tptr[big_i + 1]] {
-            let w = p.val[pq];
+        let (rc, rv) = r.row(big_i);
+        for (&i, &w) in rc.iter().zip(rv) {
             let (c, v) = a.row(i);
             for (&k, &aik) in c.iter().zip(v) {
                 let u = w * aik;
@@ -284,26 +342,25 @@ fn galerkin_values(
     }
 }
 
-/// One Gauss–Seidel sweep. The row is split at its diagonal (position known from the sorted
-/// columns), so the inner loops have no branch; subtraction order is column order.
-fn gauss_seidel(a: &Csr, b: &[f64], x: &mut [f64], forward: bool) {
+/// One Gauss–Seidel sweep with the precomputed diagonal positions and inverses of `sm`: the
+/// row is split at its diagonal, so the inner loops have no branch and no division;
+/// subtraction order is column order.
+fn gauss_seidel(a: &Csr, sm: &Smoother, b: &[f64], x: &mut [f64], forward: bool) {
     let mut sweep = |i: usize| {
-        let (c, v) = a.row(i);
-        let d = c.partition_point(|&j| j < i);
+        let inv = sm.inv[i];
+        if inv == 0.0 {
+            x[i] = 0.0;
+            return;
+        }
+        let (lo, d, hi) = (a.ptr[i], sm.dpos[i], a.ptr[i + 1]);
         let mut s = b[i];
-        let mut diag = 0.0;
-        for (&j, &aij) in c[..d].iter().zip(&v[..d]) {
+        for (&j, &aij) in a.col[lo..d].iter().zip(&a.val[lo..d]) {
             s -= aij * x[j];
         }
-        let mut rest = d;
-        if c.get(d) == Some(&i) {
-            diag = v[d];
-            rest = d + 1;
-        }
-        for (&j, &aij) in c[rest..].iter().zip(&v[rest..]) {
+        for (&j, &aij) in a.col[d + 1..hi].iter().zip(&a.val[d + 1..hi]) {
             s -= aij * x[j];
         }
-        x[i] = s / diag;
+        x[i] = s * inv;
     };
     if forward {
         (0..a.n).for_each(&mut sweep);
@@ -346,16 +403,18 @@ impl Amg {
                 &mut size,
                 &mut mark,
             )?;
-            let (tptr, tidx) = transpose_index(&p);
-            let mut ac = galerkin_pattern(current, &p, &tptr, &tidx, &mut mark);
-            galerkin_values(current, &p, &tptr, &tidx, &mut ac, &mut mark);
+            let (r, rpos) = transpose(&p);
+            let mut ac = galerkin_pattern(current, &p, &r, &mut mark);
+            galerkin_values(current, &p, &r, &mut ac, &mut mark);
+            let sm = Smoother::new(current);
             let a_level = next.take().unwrap_or_else(Csr::empty);
             levels.push(Level {
                 a: a_level,
                 aggregates,
                 p,
-                tptr,
-                tidx,
+                r,
+                rpos,
+                sm,
                 x: vec![0.0; n],
                 b: vec![0.0; n],
                 res: vec![0.0; n],
@@ -384,14 +443,15 @@ impl Amg {
 
     fn factor_coarse(a: &Csr, old: Option<Coarse>) -> Coarse {
         if a.n > 4 * COARSE_SIZE.max(1000) {
-            return Coarse::Smooth;
+            return Coarse::Smooth(Smoother::new(a));
         }
         let sp = a.to_sprs();
         let lu = match old {
             Some(Coarse::Lu(mut lu)) if lu.same_pattern(&sp) => lu.refactor(&sp).map(|_| lu),
             _ => DirectLu::new(&sp).map(Box::new),
         };
-        lu.map(Coarse::Lu).unwrap_or(Coarse::Smooth)
+        lu.map(Coarse::Lu)
+            .unwrap_or_else(|_| Coarse::Smooth(Smoother::new(a)))
     }
 
     /// Levels including the coarsest.
@@ -424,8 +484,9 @@ impl Amg {
                 a: own,
                 aggregates,
                 p,
-                tptr,
-                tidx,
+                r,
+                rpos,
+                sm,
                 diag,
                 ..
             } = &mut fine[k];
@@ -435,14 +496,41 @@ impl Amg {
                 None => &mut self.coarse_a,
             };
             prolongator_values(current, aggregates, p, diag, &mut size, &mut self.mark)?;
-            galerkin_values(current, p, tptr, tidx, out, &mut self.mark);
+            restriction_values(p, r, rpos);
+            sm.refresh(current);
+            galerkin_values(current, p, r, out, &mut self.mark);
         }
-        let old = std::mem::replace(&mut self.coarse, Coarse::Smooth);
+        let old = std::mem::replace(&mut self.coarse, Coarse::Smooth(Smoother::empty()));
         self.coarse = if nl == 0 {
             Self::factor_coarse(a, Some(old))
         } else {
             Self::factor_coarse(&self.coarse_a, Some(old))
         };
+        Ok(())
+    }
+
+    /// New values on the pattern the hierarchy was built for, cheaply: aggregates,
+    /// prolongators, coarse Galerkin matrices and the coarse factorization stay as they are
+    /// (those of the last build or refresh); only the finest level's smoother data (its
+    /// inverse diagonal) is recomputed, so the cycle smooths and forms residuals with the new
+    /// fine matrix. A preconditioner for matrices near the one the hierarchy was built for.
+    /// Fails (changing nothing) when the rows or entries differ.
+    pub(crate) fn update(&mut self, a: &Csr) -> Result<(), LinalgError> {
+        if self.fine_shape != (a.n, a.col.len()) {
+            return Err(LinalgError::NeedsPrepare(
+                "the multigrid hierarchy was built for another pattern".into(),
+            ));
+        }
+        match self.levels.first_mut() {
+            Some(l) => l.sm.refresh(a),
+            // No levels: the coarse solve is of the fine matrix itself. A factorization stays
+            // (the exact inverse of a nearby matrix); a smoother follows the new values.
+            None => {
+                if let Coarse::Smooth(sm) = &mut self.coarse {
+                    sm.refresh(a);
+                }
+            }
+        }
         Ok(())
     }
 
@@ -456,7 +544,7 @@ impl Amg {
                     self.coarse_x.fill(0.0);
                 }
             }
-            Coarse::Smooth => {
+            Coarse::Smooth(sm) => {
                 let a = if self.levels.is_empty() {
                     fine
                 } else {
@@ -464,8 +552,8 @@ impl Amg {
                 };
                 self.coarse_x.fill(0.0);
                 for _ in 0..2 {
-                    gauss_seidel(a, &self.coarse_b, &mut self.coarse_x, true);
-                    gauss_seidel(a, &self.coarse_b, &mut self.coarse_x, false);
+                    gauss_seidel(a, sm, &self.coarse_b, &mut self.coarse_x, true);
+                    gauss_seidel(a, sm, &self.coarse_b, &mut self.coarse_x, false);
                 }
             }
         }
@@ -479,14 +567,10 @@ fn prolong_add(p: &Csr, xc: &[f64], x: &mut [f64]) {
     }
 }
 
-/// b_coarse ← Pᵀ r through the transpose index (each entry summed in fine-row order).
+/// b_coarse ← R r (each entry summed in fine-row order).
 fn restrict(l: &Level, bc: &mut [f64]) {
     for (big_i, bi) in bc.iter_mut().enumerate() {
-        let mut s = 0.0;
-        for &(i, q) in &l.tidx[l.tptr[big_i]..l.tptr[big_i + 1]] {
-            s += l.p.val[q] * l.res[i];
-        }
-        *bi = s;
+        *bi = l.r.row_dot(big_i, &l.res);
     }
 }
 
@@ -507,7 +591,7 @@ impl Apply for Amg {
             let l = &mut fine[k];
             let la: &Csr = if k == 0 { a } else { &l.a };
             l.x.fill(0.0);
-            gauss_seidel(la, &l.b, &mut l.x, true);
+            gauss_seidel(la, &l.sm, &l.b, &mut l.x, true);
             la.residual(&l.b, &l.x, &mut l.res);
             let next_b = match rest.first_mut() {
                 Some(next) => &mut next.b,
@@ -525,7 +609,7 @@ impl Apply for Amg {
                 None => &self.coarse_x,
             };
             prolong_add(&l.p, xc, &mut l.x);
-            gauss_seidel(la, &l.b, &mut l.x, false);
+            gauss_seidel(la, &l.sm, &l.b, &mut l.x, false);
         }
         z.copy_from_slice(&self.levels[0].x);
     }

@@ -14,7 +14,6 @@ use faer::{Conj, MatMut, Par, Side};
 use sprs::CsMat;
 
 use super::direct::par_of;
-use super::ops::Csr;
 use super::LinalgError;
 
 /// Cholesky factorization of a symmetric positive definite CSR matrix.
@@ -53,7 +52,7 @@ impl SpdSolver {
     pub fn with_threads(a: &CsMat<f64>, threads: usize) -> Result<Self, LinalgError> {
         super::check_square(a)?;
         super::check_finite(a.data())?;
-        if !Csr::from_sprs(a).is_symmetric(1e-12) {
+        if !super::ops::sprs_is_symmetric(a, 1e-12) {
             return Err(LinalgError::NotSymmetric);
         }
         let n = a.rows();

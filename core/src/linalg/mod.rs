@@ -17,6 +17,25 @@
 //! - `ops.rs`: dot products with 8 accumulators, CSR mat-vec (rayon over row chunks from 1e5
 //!   rows; each row summed in order, so results do not depend on the thread count).
 //!
+//! A sequence of systems on one pattern (Newton iterations, time steps) has two ways in:
+//!
+//! - [`LinearSolver::prepare`]: full set-up for new values (direct: numeric refactorization
+//!   on the kept symbolic analysis; iterative: preconditioner recomputed, multigrid keeping
+//!   only its aggregates and patterns).
+//! - [`LinearSolver::update`]: new values on the pattern of the last successful prepare,
+//!   cheaply. The direct path refactors (as prepare). The iterative path copies the values
+//!   into the matrix it multiplies with and keeps the preconditioner frozen except for what
+//!   is cheap to refresh: multigrid keeps aggregates, prolongators, coarse Galerkin matrices
+//!   and the coarse LU and refreshes only the finest level's inverse diagonal (the cycle
+//!   smooths and forms residuals with the new matrix); Jacobi refreshes its diagonal; ILU(0)
+//!   refactors in place; block preconditioners update each block so. The preconditioner
+//!   kinds chosen at prepare are kept. Meant for matrices near the prepared one (a changed
+//!   time coefficient, a Newton iteration); when iteration counts grow, prepare again.
+//!
+//! Solves stop at [`LinearParams::rtol`] ([`LinearSolver::solve`]) or at a tolerance given
+//! per solve ([`LinearSolver::solve_to`], for inexact Newton); both report the iterations,
+//! the cheap trend a caller watches to decide when to prepare again.
+//!
 //! Reproducibility: faer factorizations run sequentially by default
 //! ([`LinearParams::factor_threads`] = 1), every iteration is sequential or row-parallel with
 //! a fixed summation order, so results are bitwise repeatable.
@@ -141,6 +160,13 @@ pub enum LinalgError {
     /// Memory or another failure inside the factorization library.
     #[error("factorization failed: {0}")]
     Backend(String),
+    /// [`LinearSolver::update`] cannot reuse the last prepare (none succeeded, or the pattern,
+    /// shape or block count differs): call [`LinearSolver::prepare`].
+    #[error("the solver needs a prepare: {0}")]
+    NeedsPrepare(String),
+    /// A solve was asked for a tolerance that is not a positive finite number.
+    #[error("invalid relative tolerance {0}")]
+    InvalidTolerance(f64),
     /// A solver for symmetric matrices was given a nonsymmetric one.
     #[error("the matrix is not symmetric")]
     NotSymmetric,
@@ -270,7 +296,7 @@ impl LinearSolver {
         // transport operator while the potential is flat) keeps both symbolic analyses.
         let threads = self.params.factor_threads;
         self.use_cholesky = false;
-        if self.params.cholesky_when_symmetric && Csr::from_sprs(a).is_symmetric(1e-13) {
+        if self.params.cholesky_when_symmetric && ops::sprs_is_symmetric(a, 1e-13) {
             let result = match &mut self.cholesky {
                 Some(c) if c.same_pattern(a) => c.refactor(a),
                 slot => {
@@ -385,9 +411,87 @@ impl LinearSolver {
         Ok(())
     }
 
+    /// New values `a` on the pattern of the last successful [`LinearSolver::prepare`] (same
+    /// shape, row offsets and column indices; the block count of that prepare is kept),
+    /// cheaply: the direct path refactors numerically (as prepare does); the iterative path
+    /// copies the values and refreshes only the cheap parts of its preconditioner (see the
+    /// module docs), so later solves iterate with the new matrix and a preconditioner built
+    /// mostly for the prepared one.
+    ///
+    /// Errors with [`LinalgError::NeedsPrepare`], leaving the solver as it was, when no
+    /// prepare succeeded or the pattern differs; then call prepare. Other errors (non-finite
+    /// values, a singular factorization or diagonal) leave the solver unprepared, as a failed
+    /// prepare does.
+    pub fn update(&mut self, a: &CsMat<f64>) -> Result<(), LinalgError> {
+        let method = self.ready.ok_or_else(|| {
+            LinalgError::NeedsPrepare("update before a successful prepare".into())
+        })?;
+        let same = a.is_csr()
+            && match method {
+                Method::Direct if self.use_cholesky => {
+                    self.cholesky.as_ref().is_some_and(|c| c.same_pattern(a))
+                }
+                Method::Direct => self.lu.as_ref().is_some_and(|l| l.same_pattern(a)),
+                _ => self
+                    .iterative
+                    .as_ref()
+                    .is_some_and(|it| it.a.same_pattern(a)),
+            };
+        if !same {
+            return Err(LinalgError::NeedsPrepare(
+                "the matrix's pattern differs from the prepared one".into(),
+            ));
+        }
+        self.ready = None;
+        check_finite(a.data())?;
+        match method {
+            Method::Direct => self.prepare_direct(a)?,
+            _ => self.update_iterative(a)?,
+        }
+        self.ready = Some(method);
+        Ok(())
+    }
+
+    fn update_iterative(&mut self, a: &CsMat<f64>) -> Result<(), LinalgError> {
+        let auto = self.params.krylov == Krylov::Auto;
+        let it = self
+            .iterative
+            .as_mut()
+            .ok_or_else(|| LinalgError::NeedsPrepare("no iterative state".into()))?;
+        it.a.val.copy_from_slice(a.data());
+        // CG needs a symmetric matrix; the other methods do not care, so only then is the
+        // (one-pass) check redone. The preconditioner is still valid for the fallback.
+        if auto && it.krylov == Krylov::Cg && !it.a.is_symmetric(1e-13) {
+            it.symmetric = false;
+            it.krylov = Krylov::Gmres;
+        }
+        match &mut it.pc {
+            Pc::Scalar(s) => s.update(&it.a),
+            Pc::Block(b) => b.update(&it.a),
+        }
+    }
+
     /// Solves `a x = b` for the matrix last prepared; `x` holds the initial guess on entry
-    /// (used by iterations) and the solution on return.
+    /// (used by iterations) and the solution on return. Iterations stop at
+    /// [`LinearParams::rtol`].
     pub fn solve(&mut self, b: &[f64], x: &mut [f64]) -> Result<LinearInfo, LinalgError> {
+        let rtol = self.params.rtol;
+        self.solve_to(b, x, rtol)
+    }
+
+    /// As [`LinearSolver::solve`], but the iterative path stops when the true residual meets
+    /// ‖b − A x‖ ≤ `rtol`·‖b‖ instead of [`LinearParams::rtol`] (for inexact Newton, whose
+    /// linear tolerance follows the nonlinear one). The direct path ignores `rtol`. `rtol`
+    /// must be positive and finite ([`LinalgError::InvalidTolerance`] otherwise).
+    pub fn solve_to(
+        &mut self,
+        b: &[f64],
+        x: &mut [f64],
+        rtol: f64,
+    ) -> Result<LinearInfo, LinalgError> {
+        if !(rtol > 0.0 && rtol.is_finite()) {
+            return Err(LinalgError::InvalidTolerance(rtol));
+        }
         let method = self
             .ready
             .ok_or_else(|| LinalgError::Shape("solve before a successful prepare".into()))?;
@@ -409,7 +513,7 @@ impl LinearSolver {
             Method::Direct => self.solve_direct(b, x),
             _ => {
                 check_finite(x)?;
-                self.solve_iterative(b, x)
+                self.solve_iterative(b, x, rtol)
             }
         }
     }
@@ -433,10 +537,15 @@ impl LinearSolver {
         })
     }
 
-    fn solve_iterative(&mut self, b: &[f64], x: &mut [f64]) -> Result<LinearInfo, LinalgError> {
+    fn solve_iterative(
+        &mut self,
+        b: &[f64],
+        x: &mut [f64],
+        rtol: f64,
+    ) -> Result<LinearInfo, LinalgError> {
         let p = &self.params;
         let stop = krylov::Stop {
-            rtol: p.rtol,
+            rtol,
             max_iterations: p.max_iterations,
         };
         let restart = p.gmres_restart;

@@ -146,21 +146,7 @@ impl Csr {
 
     /// Whether A equals Aᵀ within `rtol` of the largest entry.
     pub(crate) fn is_symmetric(&self, rtol: f64) -> bool {
-        let scale = self.val.iter().fold(0.0f64, |m, v| m.max(v.abs()));
-        let tol = rtol * scale;
-        (0..self.n).all(|i| {
-            let (c, v) = self.row(i);
-            c.iter().zip(v).all(|(&j, &a)| {
-                if j <= i {
-                    return true;
-                }
-                let (cj, vj) = self.row(j);
-                match cj.binary_search(&i) {
-                    Ok(k) => (vj[k] - a).abs() <= tol,
-                    Err(_) => a.abs() <= tol,
-                }
-            })
-        })
+        is_symmetric_parts(&self.ptr, &self.col, &self.val, rtol)
     }
 
     /// The diagonal block of rows and columns `lo..hi`, and where each of its rows starts in
@@ -208,6 +194,34 @@ impl Csr {
         }
         out
     }
+}
+
+/// Whether the square CSR matrix given by its arrays (row offsets starting at 0, sorted
+/// columns) equals its transpose within `rtol` of its largest entry. Works on borrowed
+/// arrays, so a `sprs` matrix is tested without a copy.
+pub(crate) fn is_symmetric_parts(ptr: &[usize], col: &[usize], val: &[f64], rtol: f64) -> bool {
+    let scale = val.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+    let tol = rtol * scale;
+    let n = ptr.len().saturating_sub(1);
+    (0..n).all(|i| {
+        let r = ptr[i]..ptr[i + 1];
+        col[r.clone()].iter().zip(&val[r]).all(|(&j, &a)| {
+            if j <= i {
+                return true;
+            }
+            let rj = ptr[j]..ptr[j + 1];
+            match col[rj.clone()].binary_search(&i) {
+                Ok(k) => (val[rj.start + k] - a).abs() <= tol,
+                Err(_) => a.abs() <= tol,
+            }
+        })
+    })
+}
+
+/// [`is_symmetric_parts`] of a `sprs` CSR matrix, reading its arrays in place (the row
+/// offsets are copied only when they do not start at 0).
+pub(crate) fn sprs_is_symmetric(a: &CsMat<f64>, rtol: f64) -> bool {
+    a.rows() == a.cols() && is_symmetric_parts(&a.indptr().to_proper(), a.indices(), a.data(), rtol)
 }
 
 #[cfg(test)]

@@ -255,6 +255,18 @@ impl Scalar {
         })
     }
 
+    /// New values on the same pattern, cheaply (see [`super::LinearSolver::update`]): Jacobi
+    /// refreshes its diagonal, ILU(0) refactors in place, multigrid keeps its whole hierarchy
+    /// and refreshes only the finest smoother.
+    pub(crate) fn update(&mut self, a: &Csr) -> Result<(), LinalgError> {
+        match self {
+            Self::Identity(_) => Ok(()),
+            Self::Jacobi(j) => j.refresh(a),
+            Self::Ilu0(i) => i.refresh(a),
+            Self::Amg(m) => m.update(a),
+        }
+    }
+
     /// New values on the same pattern: multigrid keeps its aggregates, the others rebuild.
     pub(crate) fn refresh(&mut self, a: &Csr) -> Result<(), LinalgError> {
         match self {
@@ -365,6 +377,28 @@ impl Block {
             let old = std::mem::replace(&mut part.inv, Inv::General(Scalar::Identity(Identity)));
             part.inv = Self::invert(self.kind, &part.a, Some(old))
                 .map_err(|e| offset(e, s * self.size))?;
+        }
+        Ok(())
+    }
+}
+
+impl Block {
+    /// New values on the pattern built for, cheaply: each diagonal block is refilled in place
+    /// and its preconditioner updated with [`Scalar::update`] (kinds are kept, so a block
+    /// built as diagonal keeps its exact diagonal inverse).
+    pub(crate) fn update(&mut self, a: &Csr) -> Result<(), LinalgError> {
+        if a.n != self.size * self.parts.len() || a.col.len() != self.nnz {
+            return Err(LinalgError::NeedsPrepare(
+                "the block preconditioner was built for another pattern".into(),
+            ));
+        }
+        for (s, part) in self.parts.iter_mut().enumerate() {
+            part.a.refill_block(a, &part.from);
+            match &mut part.inv {
+                Inv::Diagonal(d) => d.refresh(&part.a),
+                Inv::General(p) => p.update(&part.a),
+            }
+            .map_err(|e| offset(e, s * self.size))?;
         }
         Ok(())
     }
