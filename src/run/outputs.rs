@@ -228,9 +228,11 @@ pub(crate) fn summary(
     );
     if s.linear_iterations > 0 {
         eprintln!(
-            "  {} Krylov iterations ({:.1} per linear solve)",
+            "  {} Krylov iterations ({:.1} per linear solve), {} of {} Jacobians with a new preconditioner",
             s.linear_iterations,
-            s.linear_iterations as f64 / s.linear_solves.max(1) as f64
+            s.linear_iterations as f64 / s.linear_solves.max(1) as f64,
+            s.builds,
+            s.jacobians
         );
     }
     eprintln!(

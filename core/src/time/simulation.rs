@@ -30,6 +30,10 @@ pub struct Stats {
     pub jacobians: usize,
     /// Krylov iterations summed over linear solves.
     pub linear_iterations: usize,
+    /// Full preparations of a linear solver (factorizations, preconditioner builds); the
+    /// other Jacobians only updated a frozen preconditioner.
+    #[serde(default)]
+    pub builds: usize,
 }
 
 /// What an observer sees after each accepted step.
