@@ -334,9 +334,9 @@ mod tests {
         for r in 0..3 {
             for s in 0..3 {
                 if let Some(base) = layout.graph_base(r, s) {
-                    for i in 0..n {
+                    for (i, b) in base.iter().enumerate() {
                         for k in 0..g.row_len(i) {
-                            assert_eq!(Some(base[i] + k), layout.pos(&g, r, s, i, k));
+                            assert_eq!(Some(b + k), layout.pos(&g, r, s, i, k));
                         }
                     }
                 } else {
