@@ -13,8 +13,8 @@ use serde::{Deserialize, Serialize};
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "kebab-case")]
 pub enum Preconditioner {
-    /// Per scalar system or species block: ILU(0) when the diagonal dominates (small
-    /// dt·D/h²), algebraic multigrid otherwise.
+    /// Per scalar system or species block: ILU(0) when the diagonal dominates (dt·D/h² below
+    /// about 12.5, the measured crossover), algebraic multigrid otherwise.
     #[default]
     Auto,
     /// None (identity).
@@ -192,12 +192,26 @@ pub(crate) enum Scalar {
     Amg(Box<Amg>),
 }
 
+/// Diagonal dominance (median over sampled rows of |a_ii|/Σ_j≠i |a_ij|) from which
+/// [`Preconditioner::Auto`] takes ILU(0) instead of multigrid: 1 + 0.25/12.5, i.e.
+/// dt·D/h² ≈ 12.5 (see [`resolve`]).
+pub(crate) const ILU_DOMINANCE: f64 = 1.02;
+
 /// Resolves [`Preconditioner::Auto`] for `a` from how strongly its diagonal dominates, a
 /// proxy for dt·D/h² that needs no knowledge of where the matrix came from: for M/dt + D·K on
-/// a quality mesh, diagonal/Σ|off-diagonal| ≈ 1 + 0.25·h²/(dt·D). Mass-dominated systems
-/// (ratio ≥ 1.01, i.e. dt·D/h² ≲ 25) converge in few ILU(0) iterations, which are far cheaper
-/// than multigrid cycles; the rest get multigrid, whose iteration count does not grow with
-/// the mesh (crossover measured with `cargo bench --bench linalg`).
+/// a quality mesh, diagonal/Σ|off-diagonal| ≈ 1 + 0.25·h²/(dt·D) (h the mean edge). Above
+/// [`ILU_DOMINANCE`] (dt·D/h² ≲ 12.5) ILU(0), else multigrid.
+///
+/// Measured (`cargo bench --bench linalg -- precond`, unit disk, medians, same run): ILU(0)
+/// iterations grow with dt·D/h² (CG to 1e-8: 6, 14, 39, 113 at 0.3, 3, 30, 300) while
+/// multigrid's stay flat (6, 9, 11, 12), and a multigrid iteration costs about 3 ILU(0)
+/// iterations (1e5 nodes: 20–25 ms against 8.6 ms). Solve alone (the hierarchy kept through
+/// [`super::LinearSolver::update`]) the crossover is at dt·D/h² ≈ 10–17 at 1e5 nodes and
+/// ≈ 25 at 1e4, for the symmetric and the exponentially fitted block alike (1e5, dt·D/h² = 30:
+/// ILU(0) 250–340 ms, multigrid 180–250 ms; at 3: 93–128 ms against 200–250 ms). With a fresh
+/// multigrid set-up per solve (230–340 ms at 1e5) it moves to ≈ 100. The stepper keeps
+/// hierarchies across Newton iterations and steps, so the solve-alone crossover is used.
+/// Jacobi only ties ILU(0) at dt·D/h² = 0.3 and loses above, so Auto never picks it.
 pub(crate) fn resolve(kind: Preconditioner, a: &Csr) -> Preconditioner {
     if kind != Preconditioner::Auto {
         return kind;
@@ -227,7 +241,7 @@ pub(crate) fn resolve(kind: Preconditioner, a: &Csr) -> Preconditioner {
     }
     let mid = ratios.len() / 2;
     let (_, median, _) = ratios.select_nth_unstable_by(mid, |x, y| x.total_cmp(y));
-    if *median >= 1.01 {
+    if *median >= ILU_DOMINANCE {
         Preconditioner::Ilu0
     } else {
         Preconditioner::Amg
@@ -478,6 +492,45 @@ mod tests {
         let blk = Block::new(&a, 3, Preconditioner::Ilu0, BlockScheme::GaussSeidel).unwrap();
         assert!(matches!(blk.parts[2].inv, Inv::Diagonal(_)));
         assert!(matches!(blk.parts[0].inv, Inv::General(_)));
+    }
+
+    /// Mean edge length of a mesh.
+    fn mean_edge(mesh: &crate::mesh::Mesh) -> f64 {
+        let s: f64 = mesh
+            .edges
+            .iter()
+            .map(|e| {
+                let (p, q) = (mesh.node(e[0]), mesh.node(e[1]));
+                (p[0] - q[0]).hypot(p[1] - q[1])
+            })
+            .sum();
+        s / mesh.edges.len() as f64
+    }
+
+    #[test]
+    fn auto_takes_ilu_below_the_measured_crossover_and_multigrid_above() {
+        // dt·D/h² = 18 is the BDF2 system of a dt = 1e-3 step at 1e5 nodes on the unit disk,
+        // where multigrid was measured faster (see `resolve`); 5 is clearly mass dominated.
+        let mesh = testmats::disk_mesh(0.05);
+        let h = mean_edge(&mesh);
+        for (ratio, want) in [
+            (0.3, Preconditioner::Ilu0),
+            (5.0, Preconditioner::Ilu0),
+            (18.0, Preconditioner::Amg),
+            (300.0, Preconditioner::Amg),
+        ] {
+            let d = Csr::from_sprs(&testmats::diffusion(&mesh, ratio * h * h));
+            assert_eq!(resolve(Preconditioner::Auto, &d), want, "diffusion {ratio}");
+            let t = Csr::from_sprs(&testmats::transport(&mesh, ratio * h * h, 1.0));
+            assert_eq!(resolve(Preconditioner::Auto, &t), want, "transport {ratio}");
+        }
+        assert_eq!(
+            resolve(
+                Preconditioner::Jacobi,
+                &Csr::from_sprs(&testmats::diffusion(&mesh, 1.0))
+            ),
+            Preconditioner::Jacobi
+        );
     }
 
     #[test]
