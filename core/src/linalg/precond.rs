@@ -346,7 +346,7 @@ const MAX_ORDERED_BLOCKS: usize = 6;
 /// blocks both orders share the error operator's nonzero spectrum, so little more can be won.
 fn sweep_order(a: &Csr, blocks: usize) -> Vec<usize> {
     let identity: Vec<usize> = (0..blocks).collect();
-    if blocks < 2 || blocks > MAX_ORDERED_BLOCKS || a.n % blocks != 0 {
+    if !(2..=MAX_ORDERED_BLOCKS).contains(&blocks) || a.n % blocks != 0 {
         return identity;
     }
     let n = a.n / blocks;
@@ -648,7 +648,7 @@ mod tests {
             rtol: 1e-8,
             max_iterations: 400,
         };
-        let mut run = |order: Option<Vec<usize>>| {
+        let run = |order: Option<Vec<usize>>| {
             let mut blk =
                 Block::new(&csr, 2, Preconditioner::Amg, BlockScheme::GaussSeidel).unwrap();
             assert_eq!(blk.order, [1, 0]);
