@@ -5,6 +5,12 @@
 //! Run with `cargo bench --bench linalg` (add `-- quick` for one repetition, `-- no-1e6` to
 //! skip the largest mesh). Reports medians; the machine is shared, so compare ratios within
 //! one run rather than absolute times.
+//!
+//! `-- precond` runs only the preconditioner sweep behind `Preconditioner::Auto` and
+//! `Krylov::Auto`: M + dt·K (symmetric) and M + dt·T(ψ) (exponentially fitted, nonsymmetric)
+//! at dt·D/h² ∈ {0.3, 3, 30, 300} on the 1e4 and 1e5 meshes, each preconditioner (fresh set-up
+//! plus one solve to rtol 1e-6 and to 1e-8), CG for the symmetric and GMRES and BiCGSTAB for
+//! the nonsymmetric block, and the time per iteration.
 
 use agarium_core::geometry::{PlateSpec, Shape};
 use agarium_core::linalg::{
@@ -202,6 +208,117 @@ fn determinism(a: &CsMat<f64>) {
     );
 }
 
+/// The edge length of the mesh (mean of the edge lengths), for dt·D/h².
+fn mean_edge(m: &Mesh) -> f64 {
+    let s: f64 = m
+        .edges
+        .iter()
+        .map(|e| {
+            let (p, q) = (m.node(e[0]), m.node(e[1]));
+            (p[0] - q[0]).hypot(p[1] - q[1])
+        })
+        .sum();
+    s / m.edges.len() as f64
+}
+
+/// Medians of `reps` fresh set-ups and solves to `rtol`, and the iterations of the last.
+fn time_to(a: &CsMat<f64>, p: &LinearParams, rtol: f64, reps: usize) -> Result<Row, String> {
+    let b = rhs(a.rows());
+    let (mut ts, mut tv, mut iterations) = (Vec::new(), Vec::new(), 0);
+    for _ in 0..reps {
+        let t = Instant::now();
+        let mut solver = LinearSolver::new(p.clone());
+        solver.prepare(a, 1).map_err(|e| e.to_string())?;
+        ts.push(t.elapsed().as_secs_f64());
+        let mut x = vec![0.0; a.rows()];
+        let t = Instant::now();
+        let info = solver
+            .solve_to(&b, &mut x, rtol)
+            .map_err(|e| e.to_string())?;
+        tv.push(t.elapsed().as_secs_f64());
+        iterations = info.iterations;
+    }
+    Ok(Row {
+        setup: median(ts),
+        solve: median(tv),
+        iterations,
+    })
+}
+
+/// The preconditioner sweep (see the module docs).
+fn precond_sweep(disk: &PlateSpec, quick: bool) {
+    println!(
+        "{:>5} {:<9} {:>7} {:<16} {:>6} {:>10} {:>10} {:>10} {:>6} {:>9}",
+        "mesh",
+        "block",
+        "dtD/h2",
+        "method",
+        "rtol",
+        "setup[ms]",
+        "solve[ms]",
+        "total[ms]",
+        "iters",
+        "ms/iter"
+    );
+    for (label, h, reps) in [("1e4", 0.019, 5), ("1e5", 0.006, 3)] {
+        let reps = if quick { 1 } else { reps };
+        let mesh = build_mesh(
+            disk,
+            &MeshOptions {
+                size: h,
+                ..Default::default()
+            },
+        )
+        .expect("mesh")
+        .mesh;
+        let he = mean_edge(&mesh);
+        for ratio in [0.3, 3.0, 30.0, 300.0] {
+            let dt = ratio * he * he;
+            for (block, a) in [
+                ("diffusion", diffusion_matrix(&mesh, dt)),
+                ("SG", transport_matrix(&mesh, dt)),
+            ] {
+                let krylovs: &[(&str, Krylov)] = if block == "diffusion" {
+                    &[("CG", Krylov::Cg)]
+                } else {
+                    &[("GMRES", Krylov::Gmres), ("BiCGSTAB", Krylov::Bicgstab)]
+                };
+                for (kn, k) in krylovs {
+                    for (pn, pc) in [
+                        ("ILU0", Preconditioner::Ilu0),
+                        ("AMG", Preconditioner::Amg),
+                        ("Jacobi", Preconditioner::Jacobi),
+                        ("Auto", Preconditioner::Auto),
+                    ] {
+                        for rtol in [1e-6, 1e-8] {
+                            let p = LinearParams {
+                                max_iterations: 1000,
+                                ..iterative(*k, pc)
+                            };
+                            let m = format!("{kn}+{pn}");
+                            match time_to(&a, &p, rtol, reps) {
+                                Ok(r) => println!(
+                                    "{label:>5} {block:<9} {ratio:>7} {m:<16} {rtol:>6.0e} \
+                                     {:>10.2} {:>10.2} {:>10.2} {:>6} {:>9.3}",
+                                    r.setup * 1e3,
+                                    r.solve * 1e3,
+                                    (r.setup + r.solve) * 1e3,
+                                    r.iterations,
+                                    r.solve * 1e3 / r.iterations.max(1) as f64
+                                ),
+                                Err(e) => println!(
+                                    "{label:>5} {block:<9} {ratio:>7} {m:<16} {rtol:>6.0e} \
+                                     failed: {e}"
+                                ),
+                            }
+                        }
+                    }
+                }
+            }
+        }
+    }
+}
+
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     let smoke = !args.iter().any(|a| a == "--bench");
@@ -217,6 +334,10 @@ fn main() {
         holes: vec![],
         cuts: vec![],
     };
+    if args.iter().any(|a| a == "precond") && !smoke {
+        precond_sweep(&disk, quick);
+        return;
+    }
     // Nodes ≈ 3.6 / h² on the unit disk.
     let mut sizes: Vec<(&str, f64, usize)> = if smoke {
         vec![("2e3", 0.042, 1)]

@@ -114,6 +114,22 @@ pub fn coupled_species(mesh: &Mesh, dt: f64, species: usize) -> CsMat<f64> {
     t.to_csr()
 }
 
+/// A Keller–Segel-like Jacobian, cells then signal: cells M + dt·T(ψ) with a chemotaxis
+/// column −χ·dt·K on the signal; signal M(1 + 0.1·dt) + dt·K with production −dt·M from the
+/// cells.
+pub fn keller_segel(mesh: &Mesh, dt: f64, chi: f64) -> CsMat<f64> {
+    let n = mesh.num_nodes();
+    let mut t = TriMat::new((2 * n, 2 * n));
+    let psi = potential(mesh, 1.0);
+    add_mass(&mut t, mesh, 1.0, 0, 0);
+    add_transport(&mut t, mesh, &psi, dt, 0, 0);
+    add_laplacian(&mut t, mesh, -chi * dt, 0, n);
+    add_mass(&mut t, mesh, -dt, n, 0);
+    add_mass(&mut t, mesh, 1.0 + 0.1 * dt, n, n);
+    add_laplacian(&mut t, mesh, dt, n, n);
+    t.to_csr()
+}
+
 /// Two-species coupled matrix.
 pub fn coupled(mesh: &Mesh, dt: f64) -> CsMat<f64> {
     coupled_species(mesh, dt, 2)
