@@ -65,6 +65,9 @@ pub struct RunArgs {
     /// Time discretisation [default: bdf2].
     #[arg(long, value_enum)]
     pub scheme: Option<SchemeArg>,
+    /// Highest order of `--scheme bdf` (1 to 5) [default: 5].
+    #[arg(long, value_name = "K")]
+    pub order_limit: Option<usize>,
     /// Species coupling within a step: full Newton, or one linear solve per species with
     /// the others lagged (cheaper on large meshes) [default: newton].
     #[arg(long, value_enum)]
@@ -141,6 +144,8 @@ pub enum SchemeArg {
     Bdf2,
     /// Backward Euler (first order).
     Euler,
+    /// Variable-step, variable-order BDF (orders 1 to --order-limit, default 5).
+    Bdf,
 }
 
 /// `--coupling` values.
@@ -182,7 +187,17 @@ impl RunArgs {
             p.scheme = match s {
                 SchemeArg::Bdf2 => Scheme::Bdf2,
                 SchemeArg::Euler => Scheme::BackwardEuler,
+                SchemeArg::Bdf => Scheme::Bdf,
             };
+        }
+        if let Some(k) = self.order_limit {
+            if !(1..=agarium_core::time::BDF_MAX_ORDER).contains(&k) {
+                return Err(CliError::input(format!(
+                    "--order-limit must be between 1 and {}, got {k}",
+                    agarium_core::time::BDF_MAX_ORDER
+                )));
+            }
+            p.max_order = k;
         }
         if let Some(c) = self.coupling {
             p.coupling = match c {

@@ -1,5 +1,6 @@
 //! Checkpoints: everything a [`super::Simulation`] needs to continue exactly as if it had never
-//! stopped (the last accepted states, the proposed step, counters, the blow-up monitor).
+//! stopped (the last accepted states, the proposed step, the order state of the variable-order
+//! BDF, counters, the blow-up monitor).
 //!
 //! File layout: the 8 bytes `AGARCKPT`, a little-endian u32 format version, a little-endian u64
 //! length, that many bytes of JSON metadata, then each saved state as its time followed by its
@@ -57,6 +58,12 @@ pub(crate) struct Meta {
     pub monitor: Monitor,
     pub times: Vec<f64>,
     pub t_start: f64,
+    /// Order state of the variable-order BDF (absent from older checkpoints: order 1).
+    #[serde(default)]
+    pub order: usize,
+    /// Steps accepted at `order` since it last changed.
+    #[serde(default)]
+    pub order_steps: usize,
 }
 
 /// A saved simulation state.

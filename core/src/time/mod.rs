@@ -13,9 +13,10 @@ mod newton;
 mod params;
 mod scheme;
 mod simulation;
+mod vbdf;
 
 pub use blowup::{BlowupKind, BlowupReport};
 pub use checkpoint::{Checkpoint, CheckpointError};
 pub use failure::SolveError;
-pub use params::{BlowupParams, Coupling, Scheme, StepperParams};
+pub use params::{BlowupParams, Coupling, Scheme, StepperParams, BDF_MAX_ORDER};
 pub use simulation::{Control, Outcome, Simulation, Stats, StepReport};

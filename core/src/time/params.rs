@@ -14,7 +14,16 @@ pub enum Scheme {
     Bdf2,
     /// Backward Euler (first order, positivity-preserving for the fitted transport).
     BackwardEuler,
+    /// Variable-step, variable-order BDF (orders 1 to `max_order`, at most 5) on the actual
+    /// past times, started with backward Euler; the order is chosen after each step from error
+    /// estimates of the neighbouring orders. With fixed steps the order rises by one per step
+    /// up to `max_order`. A step whose solution leaves the positive cone is redone with
+    /// backward Euler, a Newton failure restarts at order 1.
+    Bdf,
 }
+
+/// The highest order of [`Scheme::Bdf`] (BDF6 and above are not zero-stable).
+pub const BDF_MAX_ORDER: usize = 5;
 
 /// How the species are coupled within a step.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, Default)]
@@ -99,6 +108,8 @@ pub struct StepperParams {
     /// A step is rejected when a species' minimum is below −tol × its maximum modulus
     /// (values from round-off below that are accepted). Negative: no positivity check.
     pub negativity_tol: f64,
+    /// Highest order of [`Scheme::Bdf`] (1 to [`BDF_MAX_ORDER`]; other schemes ignore it).
+    pub max_order: usize,
     /// Linear solver settings.
     pub linear: LinearParams,
     /// Blow-up detection.
@@ -119,6 +130,7 @@ impl Default for StepperParams {
             max_newton: 10,
             newton_tol: 1e-3,
             negativity_tol: 1e-12,
+            max_order: BDF_MAX_ORDER,
             linear: LinearParams::default(),
             blowup: BlowupParams::default(),
         }

@@ -1,5 +1,5 @@
 //! The time scheme: BDF coefficients, the local error estimate and the step-size control of
-//! one step attempt.
+//! one step attempt (backward Euler and BDF2 here; the variable-order BDF in `vbdf.rs`).
 
 use super::failure::Failure;
 use super::simulation::Simulation;
@@ -45,6 +45,9 @@ impl Simulation {
     /// One step attempt of size dt from the newest state: the new state, Newton iterations
     /// and the factor for the next step; or the failure and the factor to retry with.
     pub(super) fn attempt(&mut self, dt: f64) -> Result<(Vec<f64>, usize, f64), (Failure, f64)> {
+        if self.params.scheme == Scheme::Bdf {
+            return self.attempt_bdf(dt);
+        }
         let n = self.n;
         let sc = self.names.len();
         let t = self.time();

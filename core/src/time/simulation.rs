@@ -79,7 +79,8 @@ pub struct Simulation {
     pub(super) params: StepperParams,
     pub(super) names: Vec<String>,
     pub(super) n: usize,
-    /// Accepted states, newest last (at most three): (time, state).
+    /// Accepted states, newest last (at most three; `max_order + 1` for the variable-order
+    /// BDF): (time, state).
     pub(super) history: Vec<(f64, Vec<f64>)>,
     pub(super) dt_next: f64,
     pub(super) stats: Stats,
@@ -96,6 +97,10 @@ pub struct Simulation {
     pub(super) force_euler: bool,
     /// Time the run started at (the blow-up floor is relative to the span from here).
     pub(super) t_start: f64,
+    /// Order of the next step of the variable-order BDF (1 to `max_order`).
+    pub(super) order: usize,
+    /// Steps accepted at `order` since it was last changed.
+    pub(super) order_steps: usize,
 }
 
 impl std::fmt::Debug for Simulation {
@@ -180,6 +185,8 @@ impl Simulation {
             monitor,
             force_euler: false,
             t_start: t0,
+            order: 1,
+            order_steps: 0,
         };
         let steady: Vec<usize> = (0..sc).filter(|&s| sim.is_steady(s)).collect();
         if !steady.is_empty() {
@@ -276,6 +283,8 @@ impl Simulation {
                 monitor: self.monitor.clone(),
                 times: self.history.iter().map(|h| h.0).collect(),
                 t_start: self.t_start,
+                order: self.order,
+                order_steps: self.order_steps,
             },
             states: self.history.iter().map(|h| h.1.clone()).collect(),
         }
@@ -314,6 +323,8 @@ impl Simulation {
         sim.stats = meta.stats;
         sim.force_euler = meta.force_euler;
         sim.t_start = meta.t_start;
+        sim.order = meta.order.max(1);
+        sim.order_steps = meta.order_steps;
         sim.monitor = meta.monitor;
         sim.monitor.attach(&sim.mesh);
         Ok(sim)
@@ -424,7 +435,7 @@ impl Simulation {
     pub(super) fn accept(&mut self, t: f64, u: Vec<f64>) {
         self.force_euler = false;
         self.history.push((t, u));
-        if self.history.len() > 3 {
+        if self.history.len() > self.history_cap() {
             self.history.remove(0);
         }
     }
@@ -499,6 +510,9 @@ fn check_params(p: &StepperParams) -> Result<(), SolveError> {
     }
     if p.max_newton == 0 {
         return bad("max_newton must be at least 1");
+    }
+    if !(1..=super::BDF_MAX_ORDER).contains(&p.max_order) {
+        return bad("max_order must be between 1 and 5");
     }
     Ok(())
 }
