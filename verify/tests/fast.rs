@@ -1,7 +1,7 @@
 //! The fast verification set passes, and checks fail when the discretisation is broken.
 
 use agarium_core::time::Scheme;
-use agarium_verify::mms::time_order;
+use agarium_verify::mms::{bdf_time_order, time_order};
 use agarium_verify::{select, Check, Context, Criterion, Faults, Row};
 
 fn check(name: &str) -> Check {
@@ -184,6 +184,12 @@ fn a_wrong_reaction_rate_fails_the_ode_comparison() {
 #[test]
 fn without_chemotaxis_the_blow_up_data_do_not_concentrate() {
     assert_fails("blowup-data", scaled_chemotaxis(0.0));
+}
+
+#[test]
+fn bdf_held_at_three_does_not_pass_as_fourth_order() {
+    let p = bdf_time_order(&Context::fast(), 3, 0.1, 0.05).expect("runs");
+    assert!((p - 4.0).abs() > 0.15, "BDF3 observed {p}");
 }
 
 #[test]

@@ -140,28 +140,30 @@ impl Simulation {
         }
     }
 
-    /// Supplies accepted states at times before the current one (oldest first, all before
-    /// the current time), so that a multistep scheme starts at its full order: for
-    /// verification against a known solution. States beyond what the scheme keeps are
-    /// dropped (the oldest first).
-    pub fn prepend_history(&mut self, past: Vec<(f64, Vec<f64>)>) -> Result<(), SolveError> {
+    /// Replaces the accepted states (oldest first, times increasing; the last is the new
+    /// current state), so that a multistep scheme starts at its full order from states known
+    /// to be accurate: for verification. States beyond what the scheme keeps are dropped (the
+    /// oldest first).
+    pub fn set_history(&mut self, states: Vec<(f64, Vec<f64>)>) -> Result<(), SolveError> {
         let len = self.n * self.names.len();
         let mut t_prev = f64::NEG_INFINITY;
-        for (t, u) in &past {
-            if !(t.is_finite() && *t > t_prev && *t < self.time()) {
+        if states.is_empty() {
+            return Err(SolveError::Settings("no states given".into()));
+        }
+        for (t, u) in &states {
+            if !(t.is_finite() && *t > t_prev) {
                 return Err(SolveError::Settings(format!(
-                    "past state at t = {t} is not before the current time and the later ones"
+                    "state at t = {t} is not after the earlier ones"
                 )));
             }
             if u.len() != len || u.iter().any(|v| !v.is_finite()) {
                 return Err(SolveError::Settings(format!(
-                    "past state at t = {t} has not {len} finite values"
+                    "state at t = {t} has not {len} finite values"
                 )));
             }
             t_prev = *t;
         }
-        let mut history = past;
-        history.append(&mut self.history);
+        let mut history = states;
         let excess = history.len().saturating_sub(self.history_cap());
         history.drain(..excess);
         self.history = history;
@@ -384,11 +386,11 @@ mod tests {
                 }
                 let c = bdf_coefficients(&ts);
                 for degree in 0..=k {
-                    let p = |t: f64| (t - 0.3).powi(degree as i32);
+                    let p = |t: f64| (t - 0.3).powi(degree);
                     let dp = if degree == 0 {
                         0.0
                     } else {
-                        degree as f64 * (ts[0] - 0.3).powi(degree as i32 - 1)
+                        degree as f64 * (ts[0] - 0.3).powi(degree - 1)
                     };
                     let got: f64 = c.iter().zip(&ts).map(|(cj, &t)| cj * p(t)).sum();
                     let scale = c.iter().map(|x| x.abs()).sum::<f64>();
