@@ -53,7 +53,7 @@ fn json_output_carries_every_column() {
     assert_eq!(checks.len(), 1);
     assert_eq!(checks[0]["name"], "mms-time");
     let rows = checks[0]["rows"].as_array().expect("rows");
-    assert_eq!(rows.len(), 2);
+    assert_eq!(rows.len(), 4);
     for r in rows {
         for key in [
             "check",
