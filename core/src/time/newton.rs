@@ -13,8 +13,9 @@
 //!   Newton tolerance (or, in systems with quasi-steady rows, whose residuals have no time
 //!   coefficient to read them by, when the update is).
 //! - An iterative solve leaves a residual whose per-species sums would show up as drift of
-//!   conserved quantities. Each solve is corrected by a constant per species that makes every
-//!   species' residual sum zero (an S × S solve with the block sums of the matrix), which
+//!   conserved quantities. Each solve is corrected by a multiple of the new iterate per species
+//!   (values at zero stay there, none changes sign) that makes every species' residual sum
+//!   zero (an S × S solve with the weighted block sums of the matrix), which
 //!   restores exactly what a direct solve conserves: for every conserved combination, the
 //!   combination of the Jacobian is the time coefficient times the mass-weighted sum.
 //! - The linearly implicit mode solves each species once with the others at their latest
@@ -317,7 +318,12 @@ impl Simulation {
     }
 
     /// Solves the system's matrix times `delta` = `rhs` to relative residual `rtol`.
-    fn linear_solve(&mut self, sys: &mut System, rtol: f64) -> Result<LinearInfo, Failure> {
+    fn linear_solve(
+        &mut self,
+        sys: &mut System,
+        u: &[f64],
+        rtol: f64,
+    ) -> Result<LinearInfo, Failure> {
         sys.delta.fill(0.0);
         if sys.pointwise {
             let (ptr, vals) = (sys.matrix.indptr(), sys.matrix.data());
@@ -347,19 +353,28 @@ impl Simulation {
                 Some(base) if info.iterations > 2 * base + 3 => sys.rebuild = true,
                 Some(_) => {}
             }
-            self.conserve(sys);
+            self.conserve(sys, u);
         }
         Ok(info)
     }
 
-    /// Shifts each species' part of the update by a constant so that every species' linear
-    /// residual sums to zero (see the module docs).
-    fn conserve(&self, sys: &mut System) {
+    /// Corrects each species' part of the update by a multiple of the new iterate itself
+    /// (so a value at zero stays at zero and none changes sign) such that every species'
+    /// linear residual sums to zero (see the module docs; the argument holds for any
+    /// correction vector, the proportional one keeps positivity).
+    fn conserve(&self, sys: &mut System, u: &[f64]) {
         let n = self.n;
         let blocks = sys.species.len();
+        // Weights: the new iterate, clamped at zero.
+        for (slot, &s) in sys.species.iter().enumerate() {
+            for i in 0..n {
+                let k = slot * n + i;
+                sys.product[k] = (u[s * n + i] + sys.delta[k]).max(0.0);
+            }
+        }
         let a = &sys.matrix;
         let (ptr, idx, vals) = (a.indptr(), a.indices(), a.data());
-        // Residual sums ρ_r and block sums C_rs.
+        // Residual sums ρ_r and weighted block sums C_rs = Σ_rows(r) Σ_cols(s) a_ij w_j.
         let mut rho = vec![0.0; blocks];
         let mut c = vec![0.0; blocks * blocks];
         for r in 0..blocks {
@@ -368,17 +383,28 @@ impl Simulation {
                 let mut ax = 0.0;
                 for (&j, &v) in idx[range.clone()].iter().zip(&vals[range]) {
                     ax += v * sys.delta[j];
-                    c[r * blocks + j / n] += v;
+                    c[r * blocks + j / n] += v * sys.product[j];
                 }
-                sys.product[i] = ax;
                 rho[r] += sys.rhs[i] - ax;
             }
         }
-        if let Some(shift) = small_solve(&c, &rho, blocks) {
-            for (r, s) in shift.iter().enumerate() {
-                sys.delta[r * n..(r + 1) * n]
-                    .iter_mut()
-                    .for_each(|d| *d += s);
+        // A species that is zero everywhere gets no correction.
+        for r in 0..blocks {
+            if sys.product[r * n..(r + 1) * n].iter().all(|w| *w == 0.0) {
+                for q in 0..blocks {
+                    c[r * blocks + q] = 0.0;
+                    c[q * blocks + r] = 0.0;
+                }
+                c[r * blocks + r] = 1.0;
+                rho[r] = 0.0;
+            }
+        }
+        if let Some(factor) = small_solve(&c, &rho, blocks) {
+            for (r, f) in factor.iter().enumerate() {
+                let range = r * n..(r + 1) * n;
+                for (d, w) in sys.delta[range.clone()].iter_mut().zip(&sys.product[range]) {
+                    *d += f * w;
+                }
             }
         }
     }
@@ -457,7 +483,7 @@ impl Simulation {
             } else {
                 floor
             };
-            let info = self.linear_solve(sys, rtol)?;
+            let info = self.linear_solve(sys, u, rtol)?;
             self.stats.linear_solves += 1;
             self.stats.linear_iterations += info.iterations;
             self.stats.newton_iterations += 1;
