@@ -149,15 +149,19 @@ pub fn fixed_steps(scheme: Scheme, dt: f64) -> StepperParams {
         dt_initial: Some(dt),
         rtol: 1e-8,
         atol: 1e-10,
+        newton_tol: 1e-3,
         ..StepperParams::default()
     }
 }
 
-/// Adaptive BDF2 at relative tolerance `rtol` (absolute `atol`).
+/// Adaptive BDF2 at relative tolerance `rtol` (absolute `atol`), Newton converged to 1e-3 of
+/// the error target (tighter than the default 0.1, so iteration error stays far below what
+/// the checks measure).
 pub fn adaptive(rtol: f64, atol: f64) -> StepperParams {
     StepperParams {
         rtol,
         atol,
+        newton_tol: 1e-3,
         ..StepperParams::default()
     }
 }
