@@ -8,7 +8,7 @@ use ndarray::ArrayView2;
 use super::blowup::{BlowupReport, Monitor};
 use super::checkpoint::{Checkpoint, CheckpointError, Meta};
 use super::failure::{Failure, SolveError};
-use super::newton::{lagged_order, system, Buffers, System};
+use super::newton::{lagged_order, segregated_system, system, Buffers, System};
 use super::{Coupling, StepperParams};
 use crate::fem::{Discretisation, TimeTerm, Workspace};
 use crate::kernel::{KernelInput, Scratch, SpeciesKind};
@@ -162,7 +162,7 @@ impl Simulation {
                 None,
                 lagged_order(&disc, &chemotactic)
                     .into_iter()
-                    .map(|s| system(&disc, vec![s], &params))
+                    .map(|s| segregated_system(&disc, s, &params))
                     .collect(),
             ),
         };
