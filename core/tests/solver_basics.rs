@@ -111,6 +111,51 @@ fn lagged_coupling_conserves_and_agrees_with_newton() {
     );
 }
 
+/// Under `Method::Auto` the linearly implicit mode solves per-species blocks above 1,000
+/// unknowns iteratively: Krylov iterations are counted, mass is conserved to the linear
+/// tolerance, and the state agrees with the same run solved directly.
+#[test]
+fn lagged_auto_solves_large_blocks_iteratively_with_the_direct_answer() {
+    use agarium_core::time::Coupling;
+    let mesh = disk(1.0, 0.04);
+    let n = mesh.num_nodes();
+    assert!(n > 1_000, "{n} nodes");
+    let mut states = Vec::new();
+    for method in [Method::Auto, Method::Direct] {
+        let problem = keller_segel(
+            1.0,
+            1.0,
+            3.0,
+            1.0,
+            1.0,
+            |x, y| 1.0 + 2.0 * (-8.0 * ((x - 0.2).powi(2) + y * y)).exp(),
+            |x, y| 0.5 * (-4.0 * (x * x + (y + 0.3).powi(2))).exp(),
+        );
+        let mut params = fixed(2e-3, Scheme::Bdf2);
+        params.coupling = Coupling::Lagged;
+        params.linear.method = method;
+        let mut sim = Simulation::new(problem, mesh.clone(), params, 0.0).unwrap();
+        let m0 = integral_of(&mesh, sim.state_slice(), 0);
+        sim.advance_to(0.05, &mut |_| Control::Continue).unwrap();
+        let m = integral_of(&mesh, sim.state_slice(), 0);
+        assert!((m - m0).abs() < 1e-10 * m0, "{method:?}: {m} vs {m0}");
+        let st = sim.stats();
+        if method == Method::Auto {
+            assert!(st.linear_iterations > 0, "{st:?}");
+        } else {
+            assert_eq!(st.linear_iterations, 0, "{st:?}");
+        }
+        states.push(sim.state_slice()[..n].to_vec());
+    }
+    let scale = states[1].iter().fold(0.0f64, |a, v| a.max(*v));
+    let diff = states[0]
+        .iter()
+        .zip(&states[1])
+        .fold(0.0f64, |a, (x, y)| a.max((x - y).abs()));
+    // Both solve to the Newton tolerance (0.1 of the error target, rtol 1e-4 by default).
+    assert!(diff < 1e-4 * scale, "difference {diff:.3e} of {scale:.3e}");
+}
+
 /// Adaptive runs land exactly on every requested time, and an observer can stop a run.
 #[test]
 fn output_times_are_hit_exactly_and_observers_can_stop() {
