@@ -63,6 +63,19 @@ fn diffusion_chemotaxis_conserves_mass_over_100_steps() {
     }
 }
 
+/// The Keller–Segel case of the linearly implicit checks below.
+fn lagged_case() -> agarium_core::problem::Problem {
+    keller_segel(
+        1.0,
+        1.0,
+        3.0,
+        1.0,
+        1.0,
+        |x, y| 1.0 + 2.0 * (-8.0 * ((x - 0.2).powi(2) + y * y)).exp(),
+        |x, y| 0.5 * (-4.0 * (x * x + (y + 0.3).powi(2))).exp(),
+    )
+}
+
 /// The linearly implicit mode (one linear solve per species, the signal lagged) conserves
 /// mass as exactly as Newton does and agrees with it to the time-discretisation error.
 #[test]
@@ -70,22 +83,11 @@ fn lagged_coupling_conserves_and_agrees_with_newton() {
     use agarium_core::time::Coupling;
     let mesh = disk(1.0, 0.1);
     let n = mesh.num_nodes();
-    let make = || {
-        keller_segel(
-            1.0,
-            1.0,
-            3.0,
-            1.0,
-            1.0,
-            |x, y| 1.0 + 2.0 * (-8.0 * ((x - 0.2).powi(2) + y * y)).exp(),
-            |x, y| 0.5 * (-4.0 * (x * x + (y + 0.3).powi(2))).exp(),
-        )
-    };
     let mut states = Vec::new();
     for coupling in [Coupling::Newton, Coupling::Lagged] {
         let mut params = fixed(2e-3, Scheme::BackwardEuler);
         params.coupling = coupling;
-        let mut sim = Simulation::new(make(), mesh.clone(), params, 0.0).unwrap();
+        let mut sim = Simulation::new(lagged_case(), mesh.clone(), params, 0.0).unwrap();
         let m0 = integral_of(&mesh, sim.state_slice(), 0);
         sim.advance_to(0.1, &mut |_| Control::Continue).unwrap();
         let m = integral_of(&mesh, sim.state_slice(), 0);
@@ -122,15 +124,7 @@ fn lagged_auto_solves_large_blocks_iteratively_with_the_direct_answer() {
     assert!(n > 1_000, "{n} nodes");
     let mut states = Vec::new();
     for method in [Method::Auto, Method::Direct] {
-        let problem = keller_segel(
-            1.0,
-            1.0,
-            3.0,
-            1.0,
-            1.0,
-            |x, y| 1.0 + 2.0 * (-8.0 * ((x - 0.2).powi(2) + y * y)).exp(),
-            |x, y| 0.5 * (-4.0 * (x * x + (y + 0.3).powi(2))).exp(),
-        );
+        let problem = lagged_case();
         let mut params = fixed(2e-3, Scheme::Bdf2);
         params.coupling = Coupling::Lagged;
         params.linear.method = method;
