@@ -1,7 +1,7 @@
 //! Output-cost benchmark: what writing a run's outputs costs next to computing it.
 //!
 //! 1. Writing one state (.vtu with the four species and the declared field) at about 1e5
-//!    and 1e6 nodes: plain base64 (vtkio) against zlib levels 1 and 6 (our encoder), with
+//!    and 1e6 nodes: plain base64 against zlib levels 1 and 6 (both our encoder), with
 //!    the file sizes; medians.
 //! 2. The share of a whole run's wall time spent on outputs (diagnostics every step, states,
 //!    pictures, plots, checkpoints, tables; as the run itself records it in `run.json`) for

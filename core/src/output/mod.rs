@@ -5,7 +5,7 @@ mod atomic;
 mod picture;
 mod png;
 mod vtu;
-mod vtu_zlib;
+mod vtu_binary;
 
 pub use atomic::{write_atomically, write_atomically_via_path};
 pub use picture::{
