@@ -4,6 +4,7 @@ mod check;
 mod error;
 mod mesh;
 mod plate_args;
+mod progress;
 mod run;
 mod verify;
 

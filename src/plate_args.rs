@@ -74,22 +74,7 @@ pub struct MeshingArgs {
     pub max_nodes: usize,
 }
 
-pub(crate) fn numbers(what: &str, text: &str, sep: char) -> Result<Vec<f64>, String> {
-    text.split(sep)
-        .map(|s| {
-            let s = s.trim();
-            s.parse::<f64>()
-                .map_err(|_| format!("{what}: '{s}' is not a number"))
-                .and_then(|v| {
-                    if v.is_finite() {
-                        Ok(v)
-                    } else {
-                        Err(format!("{what}: '{s}' is not finite"))
-                    }
-                })
-        })
-        .collect()
-}
+pub(crate) use agarium_run::numbers;
 
 /// Parses `KIND:NUMBERS[@X,Y]`; `flag` names the option in messages.
 pub fn parse_shape(flag: &str, text: &str) -> Result<Shape, CliError> {

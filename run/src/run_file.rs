@@ -45,8 +45,8 @@ use agarium_scripting::SourcePos;
 use serde::Deserialize;
 use toml::Spanned;
 
-use super::initial::{InitialOverrides, Inoculum};
-use crate::error::CliError;
+use crate::error::RunError;
+use crate::initial::{InitialOverrides, Inoculum};
 
 /// The contents of a run file; every key is optional.
 #[derive(Debug, Default, Deserialize)]
@@ -106,11 +106,11 @@ fn line_column(text: &str, offset: usize) -> (usize, usize) {
 
 impl RunFile {
     /// Reads and checks `path`; relative paths inside are resolved against its folder.
-    pub fn read(path: &Path) -> Result<Self, CliError> {
+    pub fn read(path: &Path) -> Result<Self, RunError> {
         let text = std::fs::read_to_string(path)
-            .map_err(|e| CliError::input(format!("{}: {e}", path.display())))?;
+            .map_err(|e| RunError::input(format!("{}: {e}", path.display())))?;
         let mut file: RunFile = toml::from_str(&text)
-            .map_err(|e| CliError::input(format!("{}: {e}", path.display())))?;
+            .map_err(|e| RunError::input(format!("{}: {e}", path.display())))?;
         let base = path.parent().unwrap_or(Path::new(""));
         let resolve = |p: &mut Option<PathBuf>| {
             if let Some(q) = p.as_mut() {
@@ -146,7 +146,7 @@ impl RunFile {
         file.initial_overrides = overrides;
         if let Some(w) = file.picture_width {
             if !(320..=8192).contains(&w) {
-                return Err(CliError::input(format!(
+                return Err(RunError::input(format!(
                     "{}: picture_width = {w}: pictures are 320 to 8192 pixels wide",
                     path.display()
                 )));
@@ -154,7 +154,7 @@ impl RunFile {
         }
         if let Some(level) = file.compress {
             if level > 9 {
-                return Err(CliError::input(format!(
+                return Err(RunError::input(format!(
                     "{}: compress = {level}: the zlib level is 1 (fastest) to 9 (smallest), 0 for none",
                     path.display()
                 )));
@@ -163,7 +163,7 @@ impl RunFile {
         resolve(&mut file.model);
         resolve(&mut file.out);
         if file.mesh.is_some() && file.plate.is_none() {
-            return Err(CliError::input(format!(
+            return Err(RunError::input(format!(
                 "{}: a [mesh] table needs a [plate] table",
                 path.display()
             )));

@@ -13,7 +13,7 @@ use agarium_core::time::StepperParams;
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 
-use crate::error::CliError;
+use crate::error::RunError;
 
 /// File name of the manifest in the output folder.
 pub const MANIFEST: &str = "run.json";
@@ -129,9 +129,9 @@ pub fn sha256(text: &str) -> String {
 
 impl Manifest {
     /// Writes the manifest atomically.
-    pub fn write(&self, dir: &Path) -> Result<(), CliError> {
+    pub fn write(&self, dir: &Path) -> Result<(), RunError> {
         let path = dir.join(MANIFEST);
-        let text = serde_json::to_string_pretty(self).map_err(CliError::failure)?;
+        let text = serde_json::to_string_pretty(self).map_err(RunError::failure)?;
         write_atomically(&path, |w| {
             w.write_all(text.as_bytes())
                 .map_err(|e| agarium_core::output::OutputError::Io {
@@ -139,18 +139,18 @@ impl Manifest {
                     reason: e.to_string(),
                 })
         })
-        .map_err(CliError::failure)
+        .map_err(RunError::failure)
     }
 
     /// Reads the manifest of a run folder.
-    pub fn read(dir: &Path) -> Result<Self, CliError> {
+    pub fn read(dir: &Path) -> Result<Self, RunError> {
         let path = dir.join(MANIFEST);
         let text = std::fs::read_to_string(&path).map_err(|e| {
-            CliError::input(format!(
+            RunError::input(format!(
                 "{}: cannot read the run manifest: {e} (is this a run's output folder?)",
                 path.display()
             ))
         })?;
-        serde_json::from_str(&text).map_err(|e| CliError::input(format!("{}: {e}", path.display())))
+        serde_json::from_str(&text).map_err(|e| RunError::input(format!("{}: {e}", path.display())))
     }
 }

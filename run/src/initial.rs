@@ -10,8 +10,8 @@ use agarium_core::mesh::{BoundaryIndex, Mesh, MeshOptions, Spot};
 use agarium_scripting::{Model, SourcePos};
 use serde::{Deserialize, Serialize};
 
-use crate::error::CliError;
-use crate::plate_args::numbers;
+use crate::error::RunError;
+use crate::text::numbers;
 
 /// How an inoculum's density falls off with distance from its centre.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Serialize, Deserialize)]
@@ -55,12 +55,12 @@ fn literal(v: f64) -> String {
 
 impl Inoculum {
     /// Parses `SPECIES@X,Y,RADIUS[,LEVEL[,disc|gaussian]]`.
-    pub fn parse(text: &str) -> Result<Self, CliError> {
+    pub fn parse(text: &str) -> Result<Self, RunError> {
         let what = format!("--inoculum '{text}'");
         let form = "expected SPECIES@X,Y,RADIUS[,LEVEL[,disc|gaussian]]";
         let (species, rest) = text
             .split_once('@')
-            .ok_or_else(|| CliError::input(format!("{what}: {form}")))?;
+            .ok_or_else(|| RunError::input(format!("{what}: {form}")))?;
         let mut parts: Vec<&str> = rest.split(',').collect();
         let profile = match parts.last().map(|s| s.trim()) {
             Some("disc") => {
@@ -73,11 +73,11 @@ impl Inoculum {
             }
             _ => Profile::Disc,
         };
-        let v = numbers(&what, &parts.join(","), ',').map_err(CliError::input)?;
+        let v = numbers(&what, &parts.join(","), ',').map_err(RunError::input)?;
         let (x, y, radius, level) = match v.as_slice() {
             [x, y, r] => (*x, *y, *r, 1.0),
             [x, y, r, l] => (*x, *y, *r, *l),
-            _ => return Err(CliError::input(format!("{what}: {form}"))),
+            _ => return Err(RunError::input(format!("{what}: {form}"))),
         };
         let i = Inoculum {
             species: species.trim().to_string(),
@@ -91,15 +91,15 @@ impl Inoculum {
     }
 
     /// Refuses a radius or level a density cannot have.
-    pub fn check(&self, what: &str) -> Result<(), CliError> {
+    pub fn check(&self, what: &str) -> Result<(), RunError> {
         if !(self.radius.is_finite() && self.radius > 0.0) {
-            return Err(CliError::input(format!(
+            return Err(RunError::input(format!(
                 "{what}: the radius must be a positive number, got {}",
                 self.radius
             )));
         }
         if !self.level.is_finite() || !self.at.iter().all(|c| c.is_finite()) {
-            return Err(CliError::input(format!(
+            return Err(RunError::input(format!(
                 "{what}: the centre and level must be finite numbers"
             )));
         }
@@ -148,11 +148,11 @@ impl InitialOverrides {
     }
 
     /// `--initial NAME=EXPR` and `--inoculum …` options.
-    pub fn from_cli(initial: &[String], inocula: &[String]) -> Result<Self, CliError> {
+    pub fn from_cli(initial: &[String], inocula: &[String]) -> Result<Self, RunError> {
         let mut out = InitialOverrides::default();
         for text in initial {
             let (name, expr) = text.split_once('=').ok_or_else(|| {
-                CliError::input(format!("--initial '{text}': expected NAME=EXPRESSION"))
+                RunError::input(format!("--initial '{text}': expected NAME=EXPRESSION"))
             })?;
             let at = SourcePos {
                 file: format!("--initial {}", name.trim()),
@@ -214,11 +214,11 @@ impl InitialOverrides {
     }
 
     /// Applies the overrides to `model` before it is compiled.
-    pub fn apply(&self, model: &mut Model) -> Result<(), CliError> {
+    pub fn apply(&self, model: &mut Model) -> Result<(), RunError> {
         for (name, (expr, at)) in self.expressions() {
             model
                 .set_initial(&name, &expr, at)
-                .map_err(CliError::input)?;
+                .map_err(RunError::input)?;
         }
         Ok(())
     }
@@ -231,17 +231,17 @@ impl InitialOverrides {
     /// Refuses an inoculum centred outside the plate, and adds a refinement spot (edge
     /// length a fifth of the radius) at every inoculum that no refinement spot of the
     /// user's already covers, so the spot's profile is resolved.
-    pub fn refine(&self, spec: &PlateSpec, options: &mut MeshOptions) -> Result<(), CliError> {
+    pub fn refine(&self, spec: &PlateSpec, options: &mut MeshOptions) -> Result<(), RunError> {
         if self.spots().next().is_none() {
             return Ok(());
         }
         let plate = spec
             .discretise(&|_| options.size, options.max_nodes)
-            .map_err(CliError::input)?;
+            .map_err(RunError::input)?;
         let inside = BoundaryIndex::new(plate.loops());
         for (i, at) in self.spots() {
             if !inside.contains(i.at) {
-                return Err(CliError::input(format!(
+                return Err(RunError::input(format!(
                     "{at}: the inoculum of `{}` at ({}, {}) lies outside the plate",
                     i.species, i.at[0], i.at[1]
                 )));
@@ -264,7 +264,7 @@ impl InitialOverrides {
 
     /// Refuses a spot with no mesh node within its radius (far smaller than the mesh, or
     /// hanging over the rim), which would silently place nothing.
-    pub fn check_coverage(&self, mesh: &Mesh) -> Result<(), CliError> {
+    pub fn check_coverage(&self, mesh: &Mesh) -> Result<(), RunError> {
         for (i, at) in self.spots() {
             let r2 = i.radius * i.radius;
             let covered = (0..mesh.num_nodes()).any(|k| {
@@ -272,7 +272,7 @@ impl InitialOverrides {
                 (p[0] - i.at[0]).powi(2) + (p[1] - i.at[1]).powi(2) <= r2
             });
             if !covered {
-                return Err(CliError::input(format!(
+                return Err(RunError::input(format!(
                     "{at}: the inoculum of `{}` at ({}, {}) with radius {} covers no mesh node: refine the mesh there or enlarge the spot",
                     i.species, i.at[0], i.at[1], i.radius
                 )));

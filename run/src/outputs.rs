@@ -9,8 +9,8 @@ use agarium_core::output::{
 };
 use agarium_core::time::Simulation;
 
-use super::manifest::Manifest;
-use crate::error::CliError;
+use crate::error::RunError;
+use crate::manifest::Manifest;
 
 /// Pictures of the run's chosen fields (at its width and with its time unit), number `k`.
 pub(crate) fn write_pictures(
@@ -20,7 +20,7 @@ pub(crate) fn write_pictures(
     sim: &Simulation,
     d: &Diagnostics,
     settings: &Manifest,
-) -> Result<(), CliError> {
+) -> Result<(), RunError> {
     let state = sim.state();
     for name in &settings.pictures {
         let values: &[f64] = match sim.species_names().iter().position(|s| s == name) {
@@ -36,7 +36,7 @@ pub(crate) fn write_pictures(
             ..SnapshotOptions::default()
         };
         let path = dir.join(format!("{stem}_{name}_{k:04}.png"));
-        write_field_png(&path, sim.mesh(), values, &options).map_err(CliError::failure)?;
+        write_field_png(&path, sim.mesh(), values, &options).map_err(RunError::failure)?;
     }
     Ok(())
 }
@@ -113,7 +113,7 @@ impl History {
     }
 
     /// Integrals, sup-norms and step sizes over time as three PNG plots.
-    pub(crate) fn plot(&self, dir: &Path, stem: &str) -> Result<(), CliError> {
+    pub(crate) fn plot(&self, dir: &Path, stem: &str) -> Result<(), RunError> {
         let named = |names: &[String], data: &[Vec<(f64, f64)>], prefix: &str| -> Vec<Series> {
             names
                 .iter()
@@ -164,7 +164,7 @@ impl History {
                 // A plot with nothing drawable (e.g. every sup-norm zero on a log axis) is
                 // skipped, not fatal; a disk failure is.
                 if matches!(e, agarium_core::output::OutputError::Io { .. }) {
-                    return Err(CliError::failure(e));
+                    return Err(RunError::failure(e));
                 }
             }
         }
@@ -185,7 +185,7 @@ pub(crate) fn write_state(
     d: &Diagnostics,
     pvd: &mut PvdIndex,
     encoding: VtuEncoding,
-) -> Result<(), CliError> {
+) -> Result<(), RunError> {
     let state = sim.state();
     let names = sim.species_names();
     let mut fields: Vec<Field> = names
@@ -201,21 +201,25 @@ pub(crate) fn write_state(
     }
     let name = format!("{stem}_{k:04}.vtu");
     write_vtu_as(&dir.join(&name), sim.mesh(), &fields, &[], encoding)
-        .map_err(CliError::failure)?;
+        .map_err(RunError::failure)?;
     pvd.push(sim.time(), &name);
     pvd.write(&dir.join(format!("{stem}.pvd")))
-        .map_err(CliError::failure)
+        .map_err(RunError::failure)
 }
 
+/// The summary table of a finished run (several lines, each ending in a newline).
 pub(crate) fn summary(
     sim: &Simulation,
     start: &Diagnostics,
     last: &Diagnostics,
     seconds: f64,
     output_seconds: f64,
-) {
+) -> String {
+    use std::fmt::Write as _;
+    let mut out = String::new();
     let s = sim.stats();
-    eprintln!(
+    let _ = writeln!(
+        out,
         "reached t = {:.6e} in {} steps ({} rejected), {} Newton iterations, {} Jacobians, {} linear solves, {:.2} s ({:.1} % on outputs)",
         sim.time(),
         s.steps,
@@ -227,7 +231,8 @@ pub(crate) fn summary(
         100.0 * output_seconds / seconds.max(1e-12)
     );
     if s.linear_iterations > 0 {
-        eprintln!(
+        let _ = writeln!(
+            out,
             "  {} Krylov iterations ({:.1} per linear solve), {} of {} Jacobians with a new preconditioner",
             s.linear_iterations,
             s.linear_iterations as f64 / s.linear_solves.max(1) as f64,
@@ -235,12 +240,14 @@ pub(crate) fn summary(
             s.jacobians
         );
     }
-    eprintln!(
+    let _ = writeln!(
+        out,
         "  {:<20} {:>14} {:>14} {:>14}",
         "species", "integral", "min", "max"
     );
     for (name, st) in sim.species_names().iter().zip(&last.species) {
-        eprintln!(
+        let _ = writeln!(
+            out,
             "  {:<20} {:>14.6e} {:>14.6e} {:>14.6e}",
             name, st.integral, st.min, st.max
         );
@@ -254,6 +261,7 @@ pub(crate) fn summary(
         } else {
             String::new()
         };
-        eprintln!("  ∫ {:<18} {:>14.6e}{drift}", now.name, now.value);
+        let _ = writeln!(out, "  ∫ {:<18} {:>14.6e}{drift}", now.name, now.value);
     }
+    out
 }

@@ -1,0 +1,223 @@
+//! What a run is, resolved: the model text, overrides, plate, mesh, solver and output
+//! settings. A [`RunSpec`] is a plain value: `run` builds one from the command line and a run
+//! file, a sweep builds one per point by changing a copy.
+
+use agarium_core::geometry::PlateSpec;
+use agarium_core::mesh::MeshOptions;
+use agarium_core::output::VtuEncoding;
+use agarium_core::time::StepperParams;
+
+use crate::error::RunError;
+use crate::initial::InitialOverrides;
+use crate::manifest::DEFAULT_PICTURE_WIDTH;
+
+/// Most output files a run may write (a guard against a mistyped interval).
+pub const MAX_OUTPUTS: usize = 100_000;
+
+/// Everything a run needs before its model is compiled and its plate meshed.
+#[derive(Clone, Debug)]
+pub struct RunSpec {
+    /// The model file as the user named it (for messages and the manifest).
+    pub model_file: String,
+    /// Its text.
+    pub model_text: String,
+    /// Parameter overrides as `NAME=VALUE` texts, later ones winning.
+    pub set: Vec<String>,
+    /// Initial expressions and inoculation spots replacing the model's.
+    pub initial: InitialOverrides,
+    /// The plate.
+    pub plate: PlateSpec,
+    /// Meshing options (the inocula refine them when the run starts).
+    pub mesh: MeshOptions,
+    /// Solver settings.
+    pub solver: StepperParams,
+    /// End time.
+    pub end: f64,
+    /// Interval between written states.
+    pub every: f64,
+    /// Species or declared fields drawn as pictures.
+    pub pictures: Vec<String>,
+    /// Times of the pictures (empty: at every output time).
+    pub picture_times: Vec<f64>,
+    /// Width of the pictures in pixels.
+    pub picture_width: u32,
+    /// How .vtu arrays are stored.
+    pub vtu: VtuEncoding,
+    /// Name of the model's time unit, for titles.
+    pub time_unit: String,
+    /// File-name stem of the outputs.
+    pub stem: String,
+    /// Checkpoint every this many accepted steps as well (0: only at output times).
+    pub checkpoint_steps: usize,
+    /// Checkpoint after this many wall-clock minutes as well.
+    pub checkpoint_minutes: Option<f64>,
+    /// The command line that asked for the run (recorded in the manifest).
+    pub command_line: Vec<String>,
+}
+
+impl RunSpec {
+    /// A specification with default output settings: `end` with ten output intervals, no
+    /// pictures, plain .vtu files, the stem `run`.
+    pub fn new(
+        model_file: impl Into<String>,
+        model_text: impl Into<String>,
+        plate: PlateSpec,
+        mesh: MeshOptions,
+        end: f64,
+    ) -> Self {
+        Self {
+            model_file: model_file.into(),
+            model_text: model_text.into(),
+            set: Vec::new(),
+            initial: InitialOverrides::default(),
+            plate,
+            mesh,
+            solver: StepperParams::default(),
+            end,
+            every: end / 10.0,
+            pictures: Vec::new(),
+            picture_times: Vec::new(),
+            picture_width: DEFAULT_PICTURE_WIDTH,
+            vtu: VtuEncoding::Base64,
+            time_unit: String::new(),
+            stem: "run".into(),
+            checkpoint_steps: 0,
+            checkpoint_minutes: None,
+            command_line: Vec::new(),
+        }
+    }
+
+    /// Checks the settings that need neither the model nor the mesh; sorts and deduplicates
+    /// the picture times.
+    pub fn check(&mut self) -> Result<(), RunError> {
+        positive("end", self.end)?;
+        positive("every", self.every)?;
+        let count = output_times(self.end, self.every).len();
+        if count > MAX_OUTPUTS {
+            return Err(RunError::input(format!(
+                "every = {} gives {count} output files; choose a longer interval",
+                self.every
+            )));
+        }
+        for &t in &self.picture_times {
+            if !(t.is_finite() && (0.0..=self.end).contains(&t)) {
+                return Err(RunError::input(format!(
+                    "picture time {t}: picture times must lie between 0 and the end time {}",
+                    self.end
+                )));
+            }
+        }
+        self.picture_times.sort_by(f64::total_cmp);
+        self.picture_times.dedup();
+        if !self.picture_times.is_empty() && self.pictures.is_empty() {
+            return Err(RunError::input(
+                "picture times are given but no field to draw: add --picture FIELD (or `pictures` in the run file)",
+            ));
+        }
+        if let Some(m) = self.checkpoint_minutes {
+            positive("checkpoint minutes", m)?;
+        }
+        if !(320..=8192).contains(&self.picture_width) {
+            return Err(RunError::input(format!(
+                "picture width {}: pictures are 320 to 8192 pixels wide",
+                self.picture_width
+            )));
+        }
+        self.plate.check_numbers().map_err(RunError::input)?;
+        Ok(())
+    }
+}
+
+/// `v` when it is a positive finite number; `what` names it in the message.
+pub fn positive(what: &str, v: f64) -> Result<f64, RunError> {
+    if v.is_finite() && v > 0.0 {
+        Ok(v)
+    } else {
+        Err(RunError::input(format!(
+            "{what} must be a positive number, got {v}"
+        )))
+    }
+}
+
+/// Output times t₀ + k·every up to `end`, the last one exactly `end`.
+pub(crate) fn output_times(end: f64, every: f64) -> Vec<f64> {
+    let count = (end / every - 1e-9).ceil().max(1.0) as usize;
+    (1..=count)
+        .map(|k| if k == count { end } else { k as f64 * every })
+        .collect()
+}
+
+/// A time the run stops at, and what it writes there.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) struct Stop {
+    pub t: f64,
+    /// Number of the state file written here.
+    pub state: Option<usize>,
+    /// Number of the pictures drawn here.
+    pub picture: Option<usize>,
+}
+
+/// Every stop after t = 0: the output times (states, and pictures unless `picture_times`
+/// is given) merged with the picture times.
+pub(crate) fn stops(end: f64, every: f64, picture_times: &[f64]) -> Vec<Stop> {
+    let mut out: Vec<Stop> = output_times(end, every)
+        .into_iter()
+        .enumerate()
+        .map(|(k, t)| Stop {
+            t,
+            state: Some(k + 1),
+            picture: picture_times.is_empty().then_some(k + 1),
+        })
+        .collect();
+    for (j, &t) in picture_times.iter().enumerate() {
+        if t <= 0.0 {
+            continue;
+        }
+        match out.iter_mut().find(|s| s.t == t) {
+            Some(s) => s.picture = Some(j),
+            None => out.push(Stop {
+                t,
+                state: None,
+                picture: Some(j),
+            }),
+        }
+    }
+    out.sort_by(|a, b| a.t.total_cmp(&b.t));
+    out
+}
+
+/// Number of the pictures at t = 0, if any are drawn there.
+pub(crate) fn first_picture(picture_times: &[f64]) -> Option<usize> {
+    if picture_times.is_empty() {
+        Some(0)
+    } else {
+        picture_times.iter().position(|&t| t == 0.0)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn output_times_end_exactly_at_the_end() {
+        assert_eq!(output_times(1.0, 0.25), vec![0.25, 0.5, 0.75, 1.0]);
+        assert_eq!(
+            output_times(1.0, 0.3),
+            vec![0.3, 0.6, 0.8999999999999999, 1.0]
+        );
+        assert_eq!(output_times(1.0, 5.0), vec![1.0]);
+    }
+
+    #[test]
+    fn picture_times_merge_into_the_stops() {
+        let s = stops(1.0, 0.5, &[0.0, 0.25, 0.5]);
+        let ts: Vec<f64> = s.iter().map(|s| s.t).collect();
+        assert_eq!(ts, vec![0.25, 0.5, 1.0]);
+        assert_eq!(s[0].state, None);
+        assert_eq!(s[1].picture, Some(2));
+        assert_eq!(s[2].picture, None);
+        assert_eq!(first_picture(&[0.0, 0.25]), Some(0));
+        assert_eq!(first_picture(&[0.25]), None);
+    }
+}
