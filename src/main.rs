@@ -6,6 +6,7 @@ mod mesh;
 mod plate_args;
 mod progress;
 mod run;
+mod sweep;
 mod verify;
 
 use clap::{Parser, Subcommand};
@@ -29,6 +30,9 @@ enum Command {
     Run(Box<run::RunArgs>),
     /// Continue an interrupted run from its output folder.
     Resume(run::ResumeArgs),
+    /// Run a model over a plan of parameter values (in parallel, or as one shard of a job
+    /// array) and tabulate the outcomes; `sweep merge` combines shards.
+    Sweep(Box<sweep::SweepArgs>),
     /// Check the solver against manufactured solutions and published results; print a table
     /// and exit 1 if any check fails.
     Verify(verify::VerifyArgs),
@@ -41,6 +45,7 @@ fn main() {
         Command::Check(args) => check::run(args).map(|()| 0),
         Command::Run(args) => run::run(args),
         Command::Resume(args) => run::resume(args),
+        Command::Sweep(args) => sweep::run(args),
         Command::Verify(args) => verify::run(args),
     };
     match result {

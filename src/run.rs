@@ -243,8 +243,9 @@ fn output_count(end: f64, every: f64) -> usize {
     (end / every - 1e-9).ceil().max(1.0) as usize
 }
 
-/// The run the command line (and its run file) asks for, and its output folder.
-pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, PathBuf), CliError> {
+/// The run the command line (and its run file) asks for, the output folder named by either
+/// (if any), and the run file's contents.
+pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, Option<PathBuf>, RunFile), CliError> {
     let file = match &args.run_file {
         Some(p) => RunFile::read(p)?,
         None => RunFile::default(),
@@ -334,11 +335,7 @@ pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, PathBuf), CliError> {
         .and_then(|s| s.to_str())
         .unwrap_or("run")
         .to_string();
-    let dir = args
-        .out
-        .clone()
-        .or(file.out.clone())
-        .unwrap_or_else(|| PathBuf::from("out").join(&stem));
+    let dir = args.out.clone().or(file.out.clone());
     let spec = RunSpec {
         model_file,
         model_text,
@@ -362,7 +359,7 @@ pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, PathBuf), CliError> {
         checkpoint_minutes,
         command_line: std::env::args().collect(),
     };
-    Ok((spec, dir))
+    Ok((spec, dir, file))
 }
 
 /// Set by the Ctrl-C handler; runs stop after the current step.
@@ -471,7 +468,8 @@ fn execute(run: Run, quiet: bool) -> Result<i32, CliError> {
 /// Runs `agarium run`; returns the exit code of a completed run (0, 3 at a suspected
 /// blow-up, 130 when interrupted).
 pub fn run(args: &RunArgs) -> Result<i32, CliError> {
-    let (spec, dir) = spec_of(args)?;
+    let (spec, dir, _) = spec_of(args)?;
+    let dir = dir.unwrap_or_else(|| PathBuf::from("out").join(&spec.stem));
     let run = Run::start(spec, &dir)?;
     execute(run, args.quiet)
 }

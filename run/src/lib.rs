@@ -14,6 +14,8 @@
 //! - `initial.rs`: initial-condition overrides and inoculation spots.
 //! - `manifest.rs`: `run.json`, what was run and how it ended.
 //! - `outputs.rs`: states, pictures, plots and the summary table.
+//! - `sweep/`: many runs of one base specification over a plan of axes, their table, shards
+//!   and merges.
 
 #![deny(missing_docs)]
 
@@ -24,6 +26,7 @@ mod outputs;
 mod run_file;
 mod session;
 mod spec;
+pub mod sweep;
 mod text;
 
 pub use error::{ErrorKind, RunError};

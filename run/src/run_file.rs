@@ -91,6 +91,8 @@ pub struct RunFile {
     /// Inoculation spots replacing the model's initial condition of their species.
     #[serde(default)]
     inoculum: Vec<Spanned<Inoculum>>,
+    /// A sweep over this run (`agarium sweep`; `run` ignores it).
+    pub sweep: Option<crate::sweep::SweepSection>,
     /// The two above with their positions in the file.
     #[serde(skip)]
     pub initial_overrides: InitialOverrides,

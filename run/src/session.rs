@@ -99,6 +99,8 @@ pub struct Finished {
     pub time: f64,
     /// Solver figures.
     pub stats: Stats,
+    /// Species names in model order (the order of the diagnostics' species).
+    pub species_names: Vec<String>,
     /// Diagnostics at t = 0.
     pub start: Diagnostics,
     /// Diagnostics of the last state (`None` when they could not be evaluated, after a
@@ -129,7 +131,7 @@ pub struct Run {
 }
 
 /// Compiles the model text with the overrides and initial conditions.
-fn model_problem(
+pub(crate) fn model_problem(
     file: &str,
     text: &str,
     set: &[String],
@@ -163,12 +165,9 @@ pub fn mesh_of(
 }
 
 /// Worker threads of the rayon pool (recorded: results repeat bit for bit for the same count).
+/// Inside a sweep's per-point pool, that pool's count.
 pub fn rayon_threads() -> usize {
-    std::env::var("RAYON_NUM_THREADS")
-        .ok()
-        .and_then(|v| v.parse().ok())
-        .filter(|&n| n > 0)
-        .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()))
+    rayon::current_num_threads()
 }
 
 impl Run {
@@ -576,6 +575,7 @@ impl Run {
             ended,
             time: self.sim.time(),
             stats: self.sim.stats(),
+            species_names: self.sim.species_names().to_vec(),
             start: start.clone(),
             last,
             wall_seconds: wall,

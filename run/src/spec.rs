@@ -128,6 +128,47 @@ impl RunSpec {
     }
 }
 
+impl RunSpec {
+    /// Hex SHA-256 of everything that determines the run's results and files (not the command
+    /// line): two specifications with the same fingerprint write the same folder.
+    pub fn fingerprint(&self) -> String {
+        let initial: std::collections::BTreeMap<String, String> = self
+            .initial
+            .expressions()
+            .into_iter()
+            .map(|(name, (expr, _))| (name, expr))
+            .collect();
+        let value = serde_json::json!({
+            "model_text": self.model_text,
+            "set": self.set,
+            "initial": initial,
+            "plate": self.plate,
+            "mesh": self.mesh,
+            "solver": self.solver,
+            "end": self.end,
+            "every": self.every,
+            "pictures": self.pictures,
+            "picture_times": self.picture_times,
+            "picture_width": self.picture_width,
+            "vtu": self.vtu,
+            "time_unit": self.time_unit,
+            "stem": self.stem,
+            "checkpoint_steps": self.checkpoint_steps,
+        });
+        crate::manifest::sha256(&value.to_string())
+    }
+
+    /// Loads the model with the overrides and initial conditions (without compiling it): what
+    /// a sweep checks for every point before it starts any.
+    pub fn check_model(&self) -> Result<(), RunError> {
+        let overrides = agarium_scripting::Overrides::parse(&self.set).map_err(RunError::input)?;
+        let mut model =
+            agarium_scripting::Model::load(&self.model_file, &self.model_text, &overrides)
+                .map_err(RunError::input)?;
+        self.initial.apply(&mut model)
+    }
+}
+
 /// `v` when it is a positive finite number; `what` names it in the message.
 pub fn positive(what: &str, v: f64) -> Result<f64, RunError> {
     if v.is_finite() && v > 0.0 {
