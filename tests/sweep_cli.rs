@@ -240,3 +240,45 @@ fn bad_sweeps_are_refused_before_anything_is_written() {
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("shard 4 of 3"));
 }
+
+#[test]
+fn a_sweep_across_the_stability_threshold_separates_decay_from_growth() {
+    // The bundled example's [sweep] table, with chi on either side of the linear-stability
+    // threshold alpha·chi = (sqrt(D_u beta) + sqrt(r D_v))² = 4 of the uniform lawn (the
+    // determinant condition derived in models/chemotaxis_logistic.rhai, common practice for
+    // this model family; Mimura & Tsujikawa, Physica A 230, 1996, recalled from memory), on a
+    // coarser mesh. Below it the initial ripple (up to 0.03) decays, above it it grows.
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("threshold");
+    let o = agarium(
+        &[
+            "sweep",
+            "--run-file",
+            "examples/pattern-switch/sweep.toml",
+            "--axis",
+            "chi=3,5",
+            "--size",
+            "1.0",
+            "-q",
+            "-o",
+            out.to_str().unwrap(),
+        ],
+        Path::new(env!("CARGO_MANIFEST_DIR")),
+    );
+    ok(&o);
+    let text = std::fs::read_to_string(out.join("summary.csv")).unwrap();
+    let lines: Vec<&str> = text.lines().collect();
+    let header: Vec<&str> = lines[0].split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let deviation = |line: &str| {
+        let c: Vec<&str> = line.split(',').collect();
+        let (lo, hi): (f64, f64) = (
+            c[col("u_min")].parse().unwrap(),
+            c[col("u_max")].parse().unwrap(),
+        );
+        (hi - 1.0).max(1.0 - lo)
+    };
+    assert_eq!(lines.len(), 3);
+    assert!(deviation(lines[1]) < 1e-3, "chi = 3: {}", lines[1]);
+    assert!(deviation(lines[2]) > 0.1, "chi = 5: {}", lines[2]);
+}
