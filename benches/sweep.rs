@@ -11,13 +11,15 @@
 //! (as under `cargo test --all-targets`) a smoke run of two points on a coarse mesh checks that
 //! everything works. No timing assertions.
 
-mod common;
-
 use std::path::Path;
 use std::process::Command;
 use std::time::Instant;
 
-use common::median;
+/// Median of the samples (the upper one of an even count).
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v[v.len() / 2]
+}
 
 fn agarium(args: &[&str]) -> f64 {
     let t = Instant::now();

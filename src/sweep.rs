@@ -43,6 +43,10 @@ pub struct SweepArgs {
     /// Threads of each point's solver [default: 1].
     #[arg(long, value_name = "N")]
     pub threads_per_point: Option<usize>,
+    /// Draw a phase map of this summary column over the first two axes
+    /// (`phase-COLUMN.png`, e.g. `--map u_max`; repeatable).
+    #[arg(long = "map", value_name = "COLUMN")]
+    pub maps: Vec<String>,
     /// Run only the K-th of N disjoint slices of the points [default: from Slurm's
     /// SLURM_ARRAY_TASK_* variables inside a job array, else all points].
     #[arg(long, value_name = "K/N")]
@@ -214,7 +218,13 @@ pub fn run(args: &SweepArgs) -> Result<i32, CliError> {
         Some(j) => j,
         None => (cores / threads).max(1),
     };
-    let sweep = Sweep::new(spec, plan, &dir)?;
+    let mut maps = section.maps.clone();
+    for m in &args.maps {
+        if !maps.contains(m) {
+            maps.push(m.clone());
+        }
+    }
+    let sweep = Sweep::new(spec, plan, &maps, &dir)?;
     let mut points = Points {
         bar: None,
         quiet: args.run.quiet,

@@ -243,11 +243,13 @@ fn bad_sweeps_are_refused_before_anything_is_written() {
 
 #[test]
 fn a_sweep_across_the_stability_threshold_separates_decay_from_growth() {
-    // The bundled example's [sweep] table, with chi on either side of the linear-stability
-    // threshold alpha·chi = (sqrt(D_u beta) + sqrt(r D_v))² = 4 of the uniform lawn (the
-    // determinant condition derived in models/chemotaxis_logistic.rhai, common practice for
-    // this model family; Mimura & Tsujikawa, Physica A 230, 1996, recalled from memory), on a
-    // coarser mesh. Below it the initial ripple (up to 0.03) decays, above it it grows.
+    // The bundled example's [sweep] table over chi and D_u, on a coarser mesh. Linear stability
+    // of the uniform lawn (the determinant condition derived in
+    // models/chemotaxis_logistic.rhai, common practice for this model family; Mimura &
+    // Tsujikawa, Physica A 230, 1996, recalled from memory): it breaks up iff
+    // alpha·chi > (sqrt(D_u beta) + sqrt(r D_v))², here chi > (sqrt(D_u) + 1)², i.e. above
+    // 2.25 at D_u = 0.25 and above 9 at D_u = 4. Of chi ∈ {1.5, 4} × D_u ∈ {0.25, 4} only
+    // (4, 0.25) is unstable: there the initial ripple (up to 0.03) grows, elsewhere it decays.
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("threshold");
     let o = agarium(
@@ -256,9 +258,13 @@ fn a_sweep_across_the_stability_threshold_separates_decay_from_growth() {
             "--run-file",
             "examples/pattern-switch/sweep.toml",
             "--axis",
-            "chi=3,5",
+            "chi=1.5,4",
+            "--axis",
+            "D_u=0.25,4",
             "--size",
             "1.0",
+            "--map",
+            "u_max",
             "-q",
             "-o",
             out.to_str().unwrap(),
@@ -270,15 +276,18 @@ fn a_sweep_across_the_stability_threshold_separates_decay_from_growth() {
     let lines: Vec<&str> = text.lines().collect();
     let header: Vec<&str> = lines[0].split(',').collect();
     let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
-    let deviation = |line: &str| {
+    assert_eq!(lines.len(), 5);
+    for line in &lines[1..] {
         let c: Vec<&str> = line.split(',').collect();
-        let (lo, hi): (f64, f64) = (
-            c[col("u_min")].parse().unwrap(),
-            c[col("u_max")].parse().unwrap(),
-        );
-        (hi - 1.0).max(1.0 - lo)
-    };
-    assert_eq!(lines.len(), 3);
-    assert!(deviation(lines[1]) < 1e-3, "chi = 3: {}", lines[1]);
-    assert!(deviation(lines[2]) > 0.1, "chi = 5: {}", lines[2]);
+        let num = |name: &str| -> f64 { c[col(name)].parse().unwrap() };
+        let deviation = (num("u_max") - 1.0).max(1.0 - num("u_min"));
+        let unstable = num("chi") > (num("D_u").sqrt() + 1.0).powi(2);
+        if unstable {
+            assert!(deviation > 0.1, "should grow: {line}");
+        } else {
+            assert!(deviation < 1e-3, "should decay: {line}");
+        }
+    }
+    let png = std::fs::read(out.join("phase-u_max.png")).unwrap();
+    assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n");
 }

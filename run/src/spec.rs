@@ -159,13 +159,15 @@ impl RunSpec {
     }
 
     /// Loads the model with the overrides and initial conditions (without compiling it): what
-    /// a sweep checks for every point before it starts any.
-    pub fn check_model(&self) -> Result<(), RunError> {
+    /// a sweep checks for every point before it starts any. Returns the loaded model's
+    /// declarations (parameters with their units, species, diagnostics).
+    pub fn check_model(&self) -> Result<agarium_scripting::Declarations, RunError> {
         let overrides = agarium_scripting::Overrides::parse(&self.set).map_err(RunError::input)?;
         let mut model =
             agarium_scripting::Model::load(&self.model_file, &self.model_text, &overrides)
                 .map_err(RunError::input)?;
-        self.initial.apply(&mut model)
+        self.initial.apply(&mut model)?;
+        Ok(model.decl)
     }
 }
 

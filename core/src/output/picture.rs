@@ -14,10 +14,12 @@
 //! violet (68, 1, 84) at the low end to yellow (254, 232, 37) at the high end.
 
 mod canvas;
+mod phase;
 mod scale;
 mod series;
 mod text;
 
+pub use phase::{write_phase_png, PhaseMark, PhaseOptions, PhasePoint};
 pub use series::{write_series_png, PlotOptions, Series};
 
 use super::{write_atomically, OutputError};

@@ -22,7 +22,7 @@ mod summary;
 
 pub use axis::{Axis, AxisSection, Scale};
 pub use plan::{Combine, Plan, Point, Sample, SampleMethod, Shard};
-pub use summary::{write_summary, BlowupCell, Row, SpeciesEnd};
+pub use summary::{map_columns, write_summary, BlowupCell, Row, SpeciesEnd};
 
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
@@ -53,6 +53,9 @@ pub struct SweepSection {
     pub combine: Combine,
     /// Sampled points instead.
     pub sample: Option<Sample>,
+    /// Summary columns drawn as phase maps over the first two axes (`phase-COLUMN.png`).
+    #[serde(default)]
+    pub maps: Vec<String>,
 }
 
 /// What `sweep.json` records.
@@ -66,6 +69,12 @@ pub struct SweepRecord {
     pub hash: String,
     /// Points in the plan.
     pub points: usize,
+    /// Summary columns drawn as phase maps (not part of the hash).
+    #[serde(default)]
+    pub maps: Vec<String>,
+    /// Axis labels of the maps: names with the model's units.
+    #[serde(default)]
+    pub labels: Vec<String>,
 }
 
 /// What a sweep tells its caller as points start and end.
@@ -126,7 +135,7 @@ impl Sweep {
     /// with each point's overrides: an unknown parameter, a value outside the model's bounds
     /// or a setting the plate does not have is refused here, naming the point, before any
     /// run starts or any file is written.
-    pub fn new(base: RunSpec, plan: Plan, dir: &Path) -> Result<Self, RunError> {
+    pub fn new(base: RunSpec, plan: Plan, maps: &[String], dir: &Path) -> Result<Self, RunError> {
         plan.check()?;
         let mut base = base;
         base.check()?;
@@ -135,6 +144,7 @@ impl Sweep {
         let hash = sha256(&format!("{plan_json}\n{base_fingerprint}"));
         let points = plan.points();
         let mut specs = Vec::with_capacity(points.len());
+        let mut decl = None;
         for p in points {
             let mut spec = base.clone();
             let at = || format!("sweep point {} ({})", p.index, describe(&plan, &p.values));
@@ -142,17 +152,63 @@ impl Sweep {
                 axis.apply(&mut spec, v)
                     .map_err(|e| RunError::input(format!("{}: {}", at(), e.message)))?;
             }
-            spec.check()
+            let d = spec
+                .check()
                 .and_then(|()| spec.check_model())
                 .map_err(|e| RunError::input(format!("{}: {}", at(), e.message)))?;
+            decl.get_or_insert(d);
             let fingerprint = spec.fingerprint();
             specs.push((p, spec, fingerprint));
+        }
+        let labels: Vec<String> = plan
+            .axes
+            .iter()
+            .map(|a| {
+                let unit = decl
+                    .as_ref()
+                    .and_then(|d| d.params.iter().find(|p| p.name == a.name))
+                    .map(|p| p.unit.clone())
+                    .unwrap_or_default();
+                if unit.is_empty() {
+                    a.name.clone()
+                } else {
+                    format!("{} [{unit}]", a.name)
+                }
+            })
+            .collect();
+        if !maps.is_empty() {
+            if plan.axes.len() != 2 {
+                return Err(RunError::input(format!(
+                    "a phase map is drawn over two axes; this sweep has {}",
+                    plan.axes.len()
+                )));
+            }
+            let (species, integrals): (Vec<String>, Vec<String>) = match &decl {
+                Some(d) => (
+                    d.species.iter().map(|s| s.name.clone()).collect(),
+                    d.diagnostics
+                        .iter()
+                        .filter(|g| g.integral)
+                        .map(|g| g.name.clone())
+                        .collect(),
+                ),
+                None => (Vec::new(), Vec::new()),
+            };
+            let known = map_columns(&species, &integrals);
+            if let Some(m) = maps.iter().find(|m| !known.contains(m)) {
+                return Err(RunError::input(format!(
+                    "phase map '{m}': the summary has no such column (it has: {})",
+                    known.join(", ")
+                )));
+            }
         }
         let record = SweepRecord {
             points: specs.len(),
             plan: plan.clone(),
             base: base_fingerprint,
             hash,
+            maps: maps.to_vec(),
+            labels,
         };
         Ok(Self {
             dir: dir.to_path_buf(),
@@ -270,6 +326,9 @@ impl Sweep {
             format!("shard-{}-of-{}", shard.index, shard.count)
         };
         write_summary(&self.dir, &stem, &self.axis_names(), &rows)?;
+        if shard == Shard::ALL {
+            draw_maps(&self.dir, &self.record, &rows)?;
+        }
         Ok(SweepReport {
             points: mine.len(),
             skipped,
@@ -329,6 +388,50 @@ fn run_point(
         return Message::Error(e);
     }
     Message::Finished(Box::new(row))
+}
+
+/// Draws the record's phase maps of `rows` into `dir` (`phase-COLUMN.png`).
+fn draw_maps(dir: &Path, record: &SweepRecord, rows: &[Row]) -> Result<(), RunError> {
+    use agarium_core::output::{write_phase_png, PhaseMark, PhaseOptions, PhasePoint};
+    if rows.is_empty() || record.plan.axes.len() != 2 {
+        return Ok(());
+    }
+    let axes = &record.plan.axes;
+    let label = |k: usize| {
+        record
+            .labels
+            .get(k)
+            .cloned()
+            .unwrap_or_else(|| axes[k].name.clone())
+    };
+    for column in &record.maps {
+        let points: Vec<PhasePoint> = rows
+            .iter()
+            .map(|r| {
+                let v = r.value(column).unwrap_or(f64::NAN);
+                PhasePoint {
+                    x: r.values[0],
+                    y: r.values[1],
+                    mark: match r.outcome.as_str() {
+                        "failed" => PhaseMark::Failed,
+                        "blow-up" => PhaseMark::BlowUp(v),
+                        _ => PhaseMark::Value(v),
+                    },
+                }
+            })
+            .collect();
+        let options = PhaseOptions {
+            title: format!("{column} over {} and {}", axes[0].name, axes[1].name),
+            x_label: label(0),
+            y_label: label(1),
+            value_label: column.clone(),
+            log_x: axes[0].scale == Scale::Log,
+            log_y: axes[1].scale == Scale::Log,
+        };
+        let name = format!("phase-{}.png", column.replace(['/', '\\', ' '], "_"));
+        write_phase_png(&dir.join(name), &points, &options, 900).map_err(RunError::failure)?;
+    }
+    Ok(())
 }
 
 /// Which points a merge found missing.
@@ -391,6 +494,7 @@ pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<Merged, RunError> {
         .map_err(|e| RunError::failure(format!("{}: cannot create folder: {e}", out.display())))?;
     let axes: Vec<String> = record.plan.axes.iter().map(|a| a.name.clone()).collect();
     write_summary(out, "summary", &axes, &rows)?;
+    draw_maps(out, &record, &rows)?;
     let missing = (0..record.points)
         .filter(|i| !rows.iter().any(|r| r.point == *i))
         .collect();

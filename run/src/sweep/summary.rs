@@ -137,6 +137,49 @@ impl Row {
     }
 }
 
+impl Row {
+    /// The value of a summary column (`t_end`, `steps`, `rejected`, `NAME_integral`,
+    /// `NAME_min`, `NAME_max`, a declared integral, `blowup_t`, `wall_seconds`), if the row has
+    /// one.
+    pub fn value(&self, column: &str) -> Option<f64> {
+        match column {
+            "t_end" => return self.time,
+            "steps" => return self.steps.map(|s| s as f64),
+            "rejected" => return self.rejected.map(|s| s as f64),
+            "blowup_t" => return self.blowup.as_ref().map(|b| b.time),
+            "wall_seconds" => return Some(self.wall_seconds),
+            _ => {}
+        }
+        if let Some((_, v)) = self.integrals.iter().find(|(n, _)| n == column) {
+            return Some(*v);
+        }
+        self.species.iter().find_map(|s| {
+            let part = column.strip_prefix(s.name.as_str())?.strip_prefix('_')?;
+            match part {
+                "integral" => Some(s.integral),
+                "min" => Some(s.min),
+                "max" => Some(s.max),
+                _ => None,
+            }
+        })
+    }
+}
+
+/// The columns a phase map can colour by, for a model with these species and integrals.
+pub fn map_columns(species: &[String], integrals: &[String]) -> Vec<String> {
+    let mut out: Vec<String> = ["t_end", "steps", "rejected", "blowup_t", "wall_seconds"]
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
+    for s in species {
+        for part in ["integral", "min", "max"] {
+            out.push(format!("{s}_{part}"));
+        }
+    }
+    out.extend(integrals.iter().cloned());
+    out
+}
+
 /// A number as the table writes it (Rust's shortest round-trip form in scientific notation).
 fn num(v: f64) -> String {
     format!("{v:e}")
