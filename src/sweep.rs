@@ -47,6 +47,10 @@ pub struct SweepArgs {
     /// (`phase-COLUMN.png`, e.g. `--map u_max`; repeatable).
     #[arg(long = "map", value_name = "COLUMN")]
     pub maps: Vec<String>,
+    /// Picture this species or declared field at the end of every point and tile the
+    /// pictures into `contact-FIELD.png`.
+    #[arg(long, value_name = "FIELD")]
+    pub contact: Option<String>,
     /// Run only the K-th of N disjoint slices of the points [default: from Slurm's
     /// SLURM_ARRAY_TASK_* variables inside a job array, else all points].
     #[arg(long, value_name = "K/N")]
@@ -224,7 +228,8 @@ pub fn run(args: &SweepArgs) -> Result<i32, CliError> {
             maps.push(m.clone());
         }
     }
-    let sweep = Sweep::new(spec, plan, &maps, &dir)?;
+    let contact = args.contact.clone().or(section.contact.clone());
+    let sweep = Sweep::new(spec, plan, &maps, contact.as_deref(), &dir)?;
     let mut points = Points {
         bar: None,
         quiet: args.run.quiet,

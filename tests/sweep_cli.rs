@@ -31,6 +31,8 @@ fn args(out: &Path) -> Vec<String> {
         "D_u=lin:0.5:1:2",
         "--axis",
         "mesh.size=0.15,0.2",
+        "--contact",
+        "u",
         "-q",
         "-o",
     ]
@@ -121,6 +123,12 @@ fn a_grid_sweep_writes_a_row_per_point_and_shards_merge_to_the_same_table() {
     m.extend(["-o", merged.to_str().unwrap()]);
     ok(&agarium(&m, dir.path()));
     assert_eq!(table(&merged.join("summary.csv")), rows);
+    // The contact sheet of u at every point's end, from the shards' folders.
+    for d in [&whole, &merged] {
+        let png = std::fs::read(d.join("contact-u.png")).unwrap();
+        assert_eq!(&png[..8], b"\x89PNG\r\n\x1a\n");
+    }
+    assert!(whole.join("points/0007/keller_segel_u_0000.png").is_file());
 
     // Two of three shards: the merge says which points are missing and fails.
     let partial = agarium(

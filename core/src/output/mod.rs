@@ -9,8 +9,9 @@ mod vtu_binary;
 
 pub use atomic::{write_atomically, write_atomically_via_path};
 pub use picture::{
-    snapshot_title, write_field_png, write_phase_png, write_series_png, PhaseMark, PhaseOptions,
-    PhasePoint, PlotOptions, Series, SnapshotOptions, ValueRange, NAN_GREY,
+    snapshot_title, write_contact_sheet_png, write_field_png, write_phase_png, write_series_png,
+    PhaseMark, PhaseOptions, PhasePoint, PlotOptions, Series, SheetTile, SnapshotOptions,
+    ValueRange, NAN_GREY,
 };
 pub use png::{write_mesh_png, PngOptions};
 pub use vtu::{write_vtu, write_vtu_as, Field, VtuEncoding};

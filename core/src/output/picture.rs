@@ -17,10 +17,12 @@ mod canvas;
 mod phase;
 mod scale;
 mod series;
+mod sheet;
 mod text;
 
 pub use phase::{write_phase_png, PhaseMark, PhaseOptions, PhasePoint};
 pub use series::{write_series_png, PlotOptions, Series};
+pub use sheet::{write_contact_sheet_png, SheetTile};
 
 use super::{write_atomically, OutputError};
 use crate::mesh::Mesh;

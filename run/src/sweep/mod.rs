@@ -40,6 +40,8 @@ use summary::write_text;
 pub const SWEEP_FILE: &str = "sweep.json";
 /// File of a finished point's row in its folder.
 pub const POINT_FILE: &str = "point.json";
+/// Width of the points' pictures for a contact sheet (the smallest picture width).
+const CONTACT_WIDTH: u32 = 320;
 
 /// The `[sweep]` table of a run file.
 #[derive(Clone, Debug, Default, Deserialize)]
@@ -56,6 +58,9 @@ pub struct SweepSection {
     /// Summary columns drawn as phase maps over the first two axes (`phase-COLUMN.png`).
     #[serde(default)]
     pub maps: Vec<String>,
+    /// A species or declared field pictured at every point's end and tiled into
+    /// `contact-FIELD.png`.
+    pub contact: Option<String>,
 }
 
 /// What `sweep.json` records.
@@ -75,6 +80,9 @@ pub struct SweepRecord {
     /// Axis labels of the maps: names with the model's units.
     #[serde(default)]
     pub labels: Vec<String>,
+    /// The field of the contact sheet, and the runs' file stem.
+    #[serde(default)]
+    pub contact: Option<(String, String)>,
 }
 
 /// What a sweep tells its caller as points start and end.
@@ -135,9 +143,21 @@ impl Sweep {
     /// with each point's overrides: an unknown parameter, a value outside the model's bounds
     /// or a setting the plate does not have is refused here, naming the point, before any
     /// run starts or any file is written.
-    pub fn new(base: RunSpec, plan: Plan, maps: &[String], dir: &Path) -> Result<Self, RunError> {
+    pub fn new(
+        base: RunSpec,
+        plan: Plan,
+        maps: &[String],
+        contact: Option<&str>,
+        dir: &Path,
+    ) -> Result<Self, RunError> {
         plan.check()?;
         let mut base = base;
+        if let Some(field) = contact {
+            // Every point pictures the field at its end, small, for the sheet.
+            base.pictures = vec![field.to_string()];
+            base.picture_times = vec![base.end];
+            base.picture_width = CONTACT_WIDTH;
+        }
         base.check()?;
         let base_fingerprint = base.fingerprint();
         let plan_json = serde_json::to_string(&plan).map_err(RunError::failure)?;
@@ -151,6 +171,9 @@ impl Sweep {
             for (axis, &v) in plan.axes.iter().zip(&p.values) {
                 axis.apply(&mut spec, v)
                     .map_err(|e| RunError::input(format!("{}: {}", at(), e.message)))?;
+            }
+            if contact.is_some() {
+                spec.picture_times = vec![spec.end];
             }
             let d = spec
                 .check()
@@ -202,6 +225,25 @@ impl Sweep {
                 )));
             }
         }
+        if let (Some(field), Some(d)) = (contact, &decl) {
+            let fields: Vec<&str> = d
+                .species
+                .iter()
+                .map(|s| s.name.as_str())
+                .chain(
+                    d.diagnostics
+                        .iter()
+                        .filter(|g| !g.integral)
+                        .map(|g| g.name.as_str()),
+                )
+                .collect();
+            if !fields.contains(&field) {
+                return Err(RunError::input(format!(
+                    "contact sheet of '{field}': the model has no species or field of that name (it has: {})",
+                    fields.join(", ")
+                )));
+            }
+        }
         let record = SweepRecord {
             points: specs.len(),
             plan: plan.clone(),
@@ -209,6 +251,7 @@ impl Sweep {
             hash,
             maps: maps.to_vec(),
             labels,
+            contact: contact.map(|f| (f.to_string(), base.stem.clone())),
         };
         Ok(Self {
             dir: dir.to_path_buf(),
@@ -328,6 +371,12 @@ impl Sweep {
         write_summary(&self.dir, &stem, &self.axis_names(), &rows)?;
         if shard == Shard::ALL {
             draw_maps(&self.dir, &self.record, &rows)?;
+            draw_sheet(
+                std::slice::from_ref(&self.dir),
+                &self.dir,
+                &self.record,
+                &rows,
+            )?;
         }
         Ok(SweepReport {
             points: mine.len(),
@@ -434,6 +483,53 @@ fn draw_maps(dir: &Path, record: &SweepRecord, rows: &[Row]) -> Result<(), RunEr
     Ok(())
 }
 
+/// Draws the contact sheet of the record's field (if any) from the points' pictures (each in
+/// the first of `dirs` that holds the point) into `out` (`contact-FIELD.png`): a row per value of the first axis and a
+/// column per value of the second for a full two-axis grid, otherwise rows in point order.
+fn draw_sheet(
+    dirs: &[PathBuf],
+    out: &Path,
+    record: &SweepRecord,
+    rows: &[Row],
+) -> Result<(), RunError> {
+    use agarium_core::output::{write_contact_sheet_png, SheetTile};
+    let Some((field, stem)) = &record.contact else {
+        return Ok(());
+    };
+    if rows.is_empty() {
+        return Ok(());
+    }
+    let plan = &record.plan;
+    let columns = match (plan.axes.len(), plan.sample, plan.combine) {
+        (2, None, Combine::Grid) => plan.axes[1].values.len(),
+        _ => (rows.len() as f64).sqrt().ceil() as usize,
+    };
+    let tiles: Vec<SheetTile> = rows
+        .iter()
+        .map(|r| {
+            let name = format!("{stem}_{field}_0000.png");
+            let picture = dirs
+                .iter()
+                .map(|d| point_dir(d, r.point).join(&name))
+                .find(|p| p.is_file());
+            let mut label = describe(plan, &r.values);
+            if r.outcome != "reached" {
+                label = format!("{label} ({})", r.outcome);
+            }
+            SheetTile { picture, label }
+        })
+        .collect();
+    let title = format!("{field} at the end of each point");
+    write_contact_sheet_png(
+        &out.join(format!("contact-{field}.png")),
+        &tiles,
+        columns,
+        CONTACT_WIDTH,
+        &title,
+    )
+    .map_err(RunError::failure)
+}
+
 /// Which points a merge found missing.
 #[derive(Clone, Debug)]
 pub struct Merged {
@@ -495,6 +591,7 @@ pub fn merge(dirs: &[PathBuf], out: &Path) -> Result<Merged, RunError> {
     let axes: Vec<String> = record.plan.axes.iter().map(|a| a.name.clone()).collect();
     write_summary(out, "summary", &axes, &rows)?;
     draw_maps(out, &record, &rows)?;
+    draw_sheet(dirs, out, &record, &rows)?;
     let missing = (0..record.points)
         .filter(|i| !rows.iter().any(|r| r.point == *i))
         .collect();
