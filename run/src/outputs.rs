@@ -2,7 +2,7 @@
 
 use std::path::Path;
 
-use agarium_core::observe::{Diagnostics, PvdIndex};
+use agarium_core::observe::{Diagnostics, DiagnosticsRow, PvdIndex};
 use agarium_core::output::{
     snapshot_title, write_field_png, write_series_png, write_vtu_as, Field, PlotOptions, Series,
     SnapshotOptions, VtuEncoding,
@@ -67,32 +67,30 @@ impl History {
         h
     }
 
-    /// Rebuilds the history from the diagnostics table's rows (a resumed run), using the
-    /// table's column order: t, dt, newton, rejections, per species ∫/min/max, integrals.
-    pub(crate) fn from_rows(names: &[String], start: &Diagnostics, rows: &[Vec<f64>]) -> Self {
+    /// Rebuilds the history from the diagnostics table's rows (a resumed run).
+    pub(crate) fn from_rows(
+        names: &[String],
+        start: &Diagnostics,
+        rows: &[DiagnosticsRow],
+    ) -> Self {
         let mut h = History::new(names, start);
         h.t.clear();
         h.dt.clear();
         h.integrals.iter_mut().for_each(Vec::clear);
         h.sups.iter_mut().for_each(Vec::clear);
         h.declared.iter_mut().for_each(Vec::clear);
-        let sc = names.len();
-        for r in rows
-            .iter()
-            .filter(|r| r.len() >= 4 + 3 * sc + start.integrals.len())
-        {
-            let t = r[0];
+        for r in rows {
+            let t = r.step.t;
             h.t.push(t);
-            if r[1] > 0.0 {
-                h.dt.push((t, r[1]));
+            if r.step.dt > 0.0 {
+                h.dt.push((t, r.step.dt));
             }
-            for s in 0..sc {
-                let base = 4 + 3 * s;
-                h.integrals[s].push((t, r[base]));
-                h.sups[s].push((t, r[base + 2].abs().max(r[base + 1].abs())));
+            for (s, st) in r.species.iter().enumerate().take(names.len()) {
+                h.integrals[s].push((t, st.integral));
+                h.sups[s].push((t, st.max.abs().max(st.min.abs())));
             }
-            for k in 0..start.integrals.len() {
-                h.declared[k].push((t, r[4 + 3 * sc + k]));
+            for (k, v) in r.integrals.iter().enumerate().take(h.declared.len()) {
+                h.declared[k].push((t, *v));
             }
         }
         h

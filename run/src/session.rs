@@ -385,7 +385,7 @@ impl Run {
             csv.reload_until(t_now).map_err(RunError::input)?;
             pvd = PvdIndex::read(&dir.join(format!("{stem}.pvd"))).map_err(RunError::input)?;
             pvd.truncate_after(t_now);
-            history = History::from_rows(self.sim.species_names(), &start, &csv.values());
+            history = History::from_rows(self.sim.species_names(), &start, csv.rows());
         } else {
             csv.push(
                 StepFigures {

@@ -5,4 +5,4 @@ mod diagnostics;
 mod series;
 
 pub use diagnostics::{Diagnostics, IntegralValue, SpeciesStats};
-pub use series::{DiagnosticsCsv, PvdIndex, StepFigures};
+pub use series::{DiagnosticsCsv, DiagnosticsRow, PvdIndex, StepFigures};

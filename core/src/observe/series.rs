@@ -9,6 +9,7 @@
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
+use crate::observe::SpeciesStats;
 use crate::output::{write_atomically, OutputError};
 
 use super::Diagnostics;
@@ -121,6 +122,78 @@ pub struct StepFigures {
     pub rejections: usize,
 }
 
+/// One row of the diagnostics table, typed: the step's figures, each species' statistics,
+/// each declared integral and the relative drift of each conserved one.
+#[derive(Clone, Debug, PartialEq)]
+pub struct DiagnosticsRow {
+    /// Solver figures of the step.
+    pub step: StepFigures,
+    /// Per species, in model order.
+    pub species: Vec<SpeciesStats>,
+    /// Declared integrals' values, in model order.
+    pub integrals: Vec<f64>,
+    /// Relative drifts of the conserved integrals, in model order.
+    pub drifts: Vec<f64>,
+}
+
+impl DiagnosticsRow {
+    /// The row as the table writes it (17 significant digits: it reads back exactly).
+    fn render(&self) -> String {
+        let st = &self.step;
+        let mut row = format!(
+            "{:.17e},{:.17e},{},{}",
+            st.t, st.dt, st.newton, st.rejections
+        );
+        for s in &self.species {
+            let _ = write!(row, ",{:.17e},{:.17e},{:.17e}", s.integral, s.min, s.max);
+        }
+        for v in self.integrals.iter().chain(&self.drifts) {
+            let _ = write!(row, ",{v:.17e}");
+        }
+        row
+    }
+
+    /// Reads a row written by [`DiagnosticsRow::render`] for a table of `species` species,
+    /// `integrals` integrals and `drifts` conserved ones.
+    fn parse(line: &str, species: usize, integrals: usize, drifts: usize) -> Option<Self> {
+        let cells: Vec<&str> = line.split(',').collect();
+        if cells.len() != 4 + 3 * species + integrals + drifts {
+            return None;
+        }
+        let num = |k: usize| cells[k].trim().parse::<f64>().ok();
+        let count = |k: usize| cells[k].trim().parse::<usize>().ok();
+        let step = StepFigures {
+            t: num(0)?,
+            dt: num(1)?,
+            newton: count(2)?,
+            rejections: count(3)?,
+        };
+        let species = (0..species)
+            .map(|s| {
+                Some(SpeciesStats {
+                    integral: num(4 + 3 * s)?,
+                    min: num(5 + 3 * s)?,
+                    max: num(6 + 3 * s)?,
+                })
+            })
+            .collect::<Option<Vec<_>>>()?;
+        let base = 4 + 3 * species.len();
+        let integrals = (0..integrals)
+            .map(|k| num(base + k))
+            .collect::<Option<Vec<_>>>()?;
+        let base = base + integrals.len();
+        let drifts = (0..drifts)
+            .map(|k| num(base + k))
+            .collect::<Option<Vec<_>>>()?;
+        Some(Self {
+            step,
+            species,
+            integrals,
+            drifts,
+        })
+    }
+}
+
 /// The diagnostics table: a header naming every column and one row per accepted step.
 ///
 /// Columns: `t, dt, newton_iterations, rejections`, then per species `∫`, min and max
@@ -131,8 +204,10 @@ pub struct StepFigures {
 pub struct DiagnosticsCsv {
     path: PathBuf,
     header: String,
-    rows: Vec<(f64, String)>,
+    rows: Vec<DiagnosticsRow>,
     start: Option<Diagnostics>,
+    /// Species, integrals and conserved integrals: the shape of every row.
+    shape: (usize, usize, usize),
 }
 
 impl DiagnosticsCsv {
@@ -156,35 +231,29 @@ impl DiagnosticsCsv {
         for i in first.integrals.iter().filter(|i| i.conserved) {
             cols.push(format!("{}_drift", i.name));
         }
+        let conserved = first.integrals.iter().filter(|i| i.conserved).count();
         Self {
             path,
             header: cols.join(","),
             rows: Vec::new(),
             start: Some(first.clone()),
+            shape: (species.len(), first.integrals.len(), conserved),
         }
     }
 
     /// Appends the row of one accepted step (kept in memory until [`DiagnosticsCsv::save`]);
     /// returns the conserved drifts of that row.
     pub fn push(&mut self, step: StepFigures, d: &Diagnostics) -> Vec<(String, f64)> {
-        let mut row = format!(
-            "{:.17e},{:.17e},{},{}",
-            step.t, step.dt, step.newton, step.rejections
-        );
-        for s in &d.species {
-            let _ = write!(row, ",{:.17e},{:.17e},{:.17e}", s.integral, s.min, s.max);
-        }
-        for i in &d.integrals {
-            let _ = write!(row, ",{:.17e}", i.value);
-        }
         let drifts = match &self.start {
             Some(start) => d.conserved_drift(start),
             None => Vec::new(),
         };
-        for (_, v) in &drifts {
-            let _ = write!(row, ",{v:.17e}");
-        }
-        self.rows.push((step.t, row));
+        self.rows.push(DiagnosticsRow {
+            step,
+            species: d.species.clone(),
+            integrals: d.integrals.iter().map(|i| i.value).collect(),
+            drifts: drifts.iter().map(|(_, v)| *v).collect(),
+        });
         drifts
     }
 
@@ -203,19 +272,16 @@ impl DiagnosticsCsv {
         let mut text = String::with_capacity(self.header.len() + 1 + self.rows.len() * 200);
         text.push_str(&self.header);
         text.push('\n');
-        for (_, r) in &self.rows {
-            text.push_str(r);
+        for r in &self.rows {
+            text.push_str(&r.render());
             text.push('\n');
         }
         write_text(&self.path, &text)
     }
 
-    /// The rows as numbers (columns as in the header).
-    pub fn values(&self) -> Vec<Vec<f64>> {
-        self.rows
-            .iter()
-            .map(|(_, r)| r.split(',').filter_map(|x| x.parse().ok()).collect())
-            .collect()
+    /// The rows so far.
+    pub fn rows(&self) -> &[DiagnosticsRow] {
+        &self.rows
     }
 
     /// Reloads the rows of an earlier save up to time `t` (to resume a run); the header
@@ -233,15 +299,13 @@ impl DiagnosticsCsv {
         if lines.next() != Some(self.header.as_str()) {
             return Err(bad("its columns differ from this run's".into()));
         }
+        let (species, integrals, drifts) = self.shape;
         let mut rows = Vec::new();
         for line in lines {
-            let t_row: f64 = line
-                .split(',')
-                .next()
-                .and_then(|s| s.parse().ok())
+            let row = DiagnosticsRow::parse(line, species, integrals, drifts)
                 .ok_or_else(|| bad(format!("unreadable row: {line}")))?;
-            if t_row <= t {
-                rows.push((t_row, line.to_string()));
+            if row.step.t <= t {
+                rows.push(row);
             }
         }
         self.rows = rows;
@@ -305,6 +369,15 @@ mod tests {
         let mut again = DiagnosticsCsv::new(path.clone(), &["u".into()], &first);
         again.reload_until(0.25).unwrap();
         assert_eq!(again.len(), 2);
+        // Typed rows read back exactly and are written again byte for byte.
+        assert_eq!(again.rows()[1].step.t.to_bits(), 0.2f64.to_bits());
+        assert_eq!(
+            again.rows()[1].integrals[0].to_bits(),
+            (3.0 + 2e-13f64).to_bits()
+        );
+        again.save().unwrap();
+        let text_again = std::fs::read_to_string(&path).unwrap();
+        assert_eq!(text_again.lines().collect::<Vec<_>>(), lines[..3]);
         let mut other = DiagnosticsCsv::new(path, &["v".into()], &first);
         assert!(other.reload_until(1.0).is_err());
     }
