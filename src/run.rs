@@ -238,11 +238,6 @@ fn picture_times(mut times: Vec<f64>, end: f64) -> Result<Vec<f64>, CliError> {
     Ok(times)
 }
 
-/// Output files of `end` and `every` (as the run will write them).
-fn output_count(end: f64, every: f64) -> usize {
-    (end / every - 1e-9).ceil().max(1.0) as usize
-}
-
 /// The run the command line (and its run file) asks for, the output folder named by either
 /// (if any), and the run file's contents.
 pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, Option<PathBuf>, RunFile), CliError> {
@@ -259,7 +254,7 @@ pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, Option<PathBuf>, RunFile), Cl
         .ok_or_else(|| CliError::input("give the end time (--end, or `end` in the --run-file)"))?;
     let end = positive("--end", end)?;
     let every = positive("--every", args.every.or(file.every).unwrap_or(end / 10.0))?;
-    let count = output_count(end, every);
+    let count = agarium_run::output_count(end, every);
     if count > agarium_run::MAX_OUTPUTS {
         return Err(CliError::input(format!(
             "--every {every} gives {count} output files; choose a longer interval"

@@ -36,5 +36,5 @@ pub use manifest::{
 };
 pub use run_file::RunFile;
 pub use session::{mesh_of, rayon_threads, Ended, Finished, Observer, Run, Silent, Started};
-pub use spec::{positive, RunSpec, MAX_OUTPUTS};
+pub use spec::{output_count, positive, RunSpec, MAX_OUTPUTS};
 pub use text::numbers;

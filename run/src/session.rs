@@ -247,17 +247,15 @@ impl Run {
         std::fs::create_dir_all(dir).map_err(|e| {
             RunError::failure(format!("{}: cannot create folder: {e}", dir.display()))
         })?;
-        Ok(Self {
-            stops: stops(manifest.end, manifest.every, &manifest.picture_times),
+        Ok(Self::ready(
             manifest,
-            dir: dir.to_path_buf(),
+            dir,
             problem,
             mesh,
             sim,
-            resumed: false,
-            notes: Vec::new(),
-            checkpointed: Instant::now(),
-        })
+            false,
+            Vec::new(),
+        ))
     }
 
     /// Rebuilds the run of folder `dir` from its manifest and continues from its checkpoint.
@@ -299,17 +297,30 @@ impl Run {
             checkpoint,
         )
         .map_err(RunError::input)?;
-        Ok(Self {
+        Ok(Self::ready(manifest, dir, problem, mesh, sim, true, notes))
+    }
+
+    /// A run of `manifest` ready to advance in `dir`.
+    fn ready(
+        manifest: Manifest,
+        dir: &Path,
+        problem: Problem,
+        mesh: Arc<Mesh>,
+        sim: Simulation,
+        resumed: bool,
+        notes: Vec<String>,
+    ) -> Self {
+        Self {
             stops: stops(manifest.end, manifest.every, &manifest.picture_times),
             manifest,
             dir: dir.to_path_buf(),
             problem,
             mesh,
             sim,
-            resumed: true,
+            resumed,
             notes,
             checkpointed: Instant::now(),
-        })
+        }
     }
 
     /// The manifest as it stands (written into the folder at the first output).

@@ -92,7 +92,7 @@ impl RunSpec {
     pub fn check(&mut self) -> Result<(), RunError> {
         positive("end", self.end)?;
         positive("every", self.every)?;
-        let count = output_times(self.end, self.every).len();
+        let count = output_count(self.end, self.every);
         if count > MAX_OUTPUTS {
             return Err(RunError::input(format!(
                 "every = {} gives {count} output files; choose a longer interval",
@@ -182,9 +182,14 @@ pub fn positive(what: &str, v: f64) -> Result<f64, RunError> {
     }
 }
 
+/// Output files (states after t = 0) a run to `end` writing every `every` has.
+pub fn output_count(end: f64, every: f64) -> usize {
+    (end / every - 1e-9).ceil().max(1.0) as usize
+}
+
 /// Output times t₀ + k·every up to `end`, the last one exactly `end`.
 pub(crate) fn output_times(end: f64, every: f64) -> Vec<f64> {
-    let count = (end / every - 1e-9).ceil().max(1.0) as usize;
+    let count = output_count(end, every);
     (1..=count)
         .map(|k| if k == count { end } else { k as f64 * every })
         .collect()
