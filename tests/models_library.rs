@@ -8,10 +8,11 @@ use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
 /// The files of the library; each must exist (the list guards against a file silently missing).
-const LIBRARY: [&str; 10] = [
+const LIBRARY: [&str; 11] = [
     "chemotaxis_bistable.rhai",
     "chemotaxis_logistic.rhai",
     "colony_4species.rhai",
+    "colony_crowded.rhai",
     "colony_quasi_steady.rhai",
     "fisher_kpp.rhai",
     "keller_segel.rhai",
@@ -177,7 +178,12 @@ fn diagnostics(dir: &Path, stem: &str) -> BTreeMap<String, Vec<f64>> {
 
 /// Runs `model` briefly on a small disc and checks the diagnostics: every species' minimum
 /// stays above −1e-9 × its maximum, and the drift of each conserved integral stays below 1e-8.
-fn short_run(model: &str, species: &[&str], conserved: &[&str], extra: &[&str]) {
+fn short_run(
+    model: &str,
+    species: &[&str],
+    conserved: &[&str],
+    extra: &[&str],
+) -> BTreeMap<String, Vec<f64>> {
     let dir = tempfile::tempdir().expect("tempdir");
     let out = dir.path().join("out");
     let path = models_dir().join(model);
@@ -231,6 +237,7 @@ fn short_run(model: &str, species: &[&str], conserved: &[&str], extra: &[&str]) 
         let worst = d.iter().fold(0.0f64, |m, v| m.max(v.abs()));
         assert!(worst < 1e-8, "{model}: {c} drift {worst:.3e}");
     }
+    cols
 }
 
 #[test]
@@ -304,6 +311,21 @@ fn chemotaxis_bistable_runs_positive() {
         &[],
         &["--end", "3", "--set", "radius=2"],
     );
+}
+
+/// The crowded colony keeps 0 ≤ u ≤ u_pack (= 1) even with chemotaxis strong enough to
+/// gather the inoculum into an aggregate: growth and the chemotactic flux vanish at u_pack.
+#[test]
+fn colony_crowded_stays_below_the_packing_density() {
+    let cols = short_run(
+        "colony_crowded.rhai",
+        &["u", "c", "n", "w"],
+        &["biomass_and_food"],
+        &["--end", "4", "--set", "chi_0=15"],
+    );
+    let top = cols["u_max"].iter().fold(0.0f64, |m, v| m.max(*v));
+    assert!(top > 0.5, "u never gathered: max {top}");
+    assert!(top <= 1.0 + 1e-9, "u above the packing density: {top}");
 }
 
 #[test]

@@ -6,7 +6,8 @@
 //! - mesh-scale concentration: on a fixed mesh a positive, conservative discrete solution
 //!   cannot exceed (total mass)/(smallest node area), so a collapsing aggregate ends as a
 //!   spike one element wide instead of an infinite peak. Most of a chemotactic species' mass
-//!   gathering within a few element diameters of its peak, with the peak still growing, is
+//!   gathering within a few element diameters of its peak, with the peak still growing and
+//!   standing well above its mesh neighbours (a spike, not a plateau at a packing bound), is
 //!   reported as a suspected blow-up whose verdict depends on the mesh.
 
 use serde::{Deserialize, Serialize};
@@ -230,7 +231,11 @@ impl Monitor {
             // mesh) also gathers half the mass near its peak; a collapse at the mesh scale
             // puts a good part of it into the peak node itself.
             let in_peak_node = report.peak * mesh.node_areas[report.node] / mass;
-            if share >= self.params.concentration && in_peak_node >= self.params.peak_share {
+            // A collapse ends one node wide; an aggregate stopped by crowding is a plateau
+            // whose neighbours are nearly as high as its peak.
+            let spike = report.peak >= self.params.spike * neighbour_mean(mesh, u, report.node);
+            if share >= self.params.concentration && in_peak_node >= self.params.peak_share && spike
+            {
                 return Some(report);
             }
         }
@@ -274,6 +279,27 @@ impl Monitor {
     }
 }
 
+/// Mean value at the mesh neighbours of `node` (0 for an isolated node).
+fn neighbour_mean(mesh: &Mesh, u: &[f64], node: usize) -> f64 {
+    let (mut sum, mut count) = (0.0, 0usize);
+    for &[a, b] in &mesh.edges {
+        let other = if a == node {
+            b
+        } else if b == node {
+            a
+        } else {
+            continue;
+        };
+        sum += u[other];
+        count += 1;
+    }
+    if count == 0 {
+        0.0
+    } else {
+        sum / count as f64
+    }
+}
+
 /// Sup-norm of each species and its ratio to the species' integral (0 for a zero integral).
 fn peaks(mesh: &Mesh, u: &[f64], species: usize) -> (Vec<f64>, Vec<f64>) {
     let n = mesh.num_nodes();
@@ -285,4 +311,81 @@ fn peaks(mesh: &Mesh, u: &[f64], species: usize) -> (Vec<f64>, Vec<f64>) {
             (sup, if mass > 0.0 { sup / mass } else { 0.0 })
         })
         .unzip()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::Array2;
+
+    /// Uniform grid of (k+1)² nodes on [0, 1]², two triangles per cell.
+    fn grid(k: usize) -> Mesh {
+        let n = k + 1;
+        let mut nodes = Array2::zeros((n * n, 2));
+        for j in 0..n {
+            for i in 0..n {
+                nodes[[j * n + i, 0]] = i as f64 / k as f64;
+                nodes[[j * n + i, 1]] = j as f64 / k as f64;
+            }
+        }
+        let mut tris = Vec::new();
+        for j in 0..k {
+            for i in 0..k {
+                let a = j * n + i;
+                tris.push([a, a + 1, a + n + 1]);
+                tris.push([a, a + n + 1, a + n]);
+            }
+        }
+        Mesh::from_parts(nodes, tris, &|_| 0).unwrap()
+    }
+
+    /// Drives a monitor through a growing concentration around the centre node of a 20×20
+    /// grid: `shape(d)` is the profile at grid distance d (in cells), scaled up every step.
+    fn verdict(spike: f64, shape: impl Fn(f64) -> f64) -> Option<BlowupReport> {
+        let mesh = grid(20);
+        let n = mesh.num_nodes();
+        let centre = [0.5, 0.5];
+        let state = |amp: f64| -> Vec<f64> {
+            (0..n)
+                .map(|i| {
+                    let p = mesh.node(i);
+                    let d = 20.0 * (p[0] - centre[0]).hypot(p[1] - centre[1]);
+                    1e-3 + amp * shape(d)
+                })
+                .collect()
+        };
+        let params = BlowupParams {
+            spike,
+            ..BlowupParams::default()
+        };
+        let mut m = Monitor::new(params, &mesh, vec![true], &state(0.0));
+        let names = vec!["u".to_string()];
+        let mut last = None;
+        for k in 1..=14 {
+            let u = state(0.01 * 1.6f64.powi(k));
+            m.record(&mesh, k as f64 * 0.1, 0.1, &u);
+            last = m.check(&mesh, &names, &u, k as f64 * 0.1, 0.1, 1e-9);
+            if last.is_some() {
+                break;
+            }
+        }
+        last
+    }
+
+    #[test]
+    fn a_spike_one_node_wide_is_reported() {
+        let r = verdict(1.5, |d| if d < 0.5 { 1.0 } else { 0.0 }).expect("a spike");
+        assert_eq!(r.kind, BlowupKind::MeshScaleConcentration);
+        assert_eq!(r.location, [0.5, 0.5]);
+    }
+
+    #[test]
+    fn a_plateau_a_few_nodes_wide_is_not() {
+        // The same mass concentration, but flat over the centre node and its neighbours:
+        // an aggregate stopped at a packing density, not a collapse. Without the spike
+        // criterion (factor 0) it is reported as well.
+        let plateau = |d: f64| if d < 1.5 { 1.0 - 0.01 * d } else { 0.0 };
+        assert!(verdict(1.5, plateau).is_none());
+        assert!(verdict(0.0, plateau).is_some());
+    }
 }

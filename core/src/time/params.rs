@@ -62,8 +62,16 @@ pub struct BlowupParams {
     /// growing…
     pub peak_growth: f64,
     /// …and the peak node alone (its value times its area) holds at least this share of the
-    /// mass.
+    /// mass…
     pub peak_share: f64,
+    /// …and the peak is a spike: at least this factor above the mean of its mesh neighbours
+    /// (a plateau at a packing bound, whose neighbours are nearly as high, is not).
+    #[serde(default = "default_spike")]
+    pub spike: f64,
+}
+
+fn default_spike() -> f64 {
+    1.5
 }
 
 impl Default for BlowupParams {
@@ -77,6 +85,7 @@ impl Default for BlowupParams {
             radius_elements: 3.0,
             peak_growth: 4.0,
             peak_share: 0.05,
+            spike: default_spike(),
         }
     }
 }
