@@ -238,8 +238,10 @@ fn restriction_values(p: &Csr, r: &mut Csr, rpos: &[usize]) {
     }
 }
 
-/// Pattern of the Galerkin product R A P (rows sorted).
-fn galerkin_pattern(a: &Csr, p: &Csr, r: &Csr, mark: &mut [usize]) -> Csr {
+/// The Galerkin product R A P, pattern and values in one pass (rows sorted). Each entry is
+/// summed in the same order as [`galerkin_values`] sums it, so a later refresh on the same
+/// values reproduces it bit for bit. `acc` is a dense scratch of at least `p.ncols` values.
+fn galerkin_product(a: &Csr, p: &Csr, r: &Csr, mark: &mut [usize], acc: &mut [f64]) -> Csr {
     let nc = p.ncols;
     let mut ac = Csr::empty();
     ac.n = nc;
@@ -248,21 +250,27 @@ fn galerkin_pattern(a: &Csr, p: &Csr, r: &Csr, mark: &mut [usize]) -> Csr {
     ac.ptr.push(0);
     for big_i in 0..nc {
         let start = ac.col.len();
-        for &i in r.row(big_i).0 {
-            for &k in a.row(i).0 {
-                for &j in p.row(k).0 {
+        let (rc, rv) = r.row(big_i);
+        for (&i, &w) in rc.iter().zip(rv) {
+            let (c, v) = a.row(i);
+            for (&k, &aik) in c.iter().zip(v) {
+                let u = w * aik;
+                let (pc, pv) = p.row(k);
+                for (&j, &pkj) in pc.iter().zip(pv) {
                     if mark[j] != big_i {
                         mark[j] = big_i;
                         ac.col.push(j);
+                        acc[j] = 0.0;
                     }
+                    acc[j] += u * pkj;
                 }
             }
         }
         ac.col[start..].sort_unstable();
+        ac.val.extend(ac.col[start..].iter().map(|&j| acc[j]));
         ac.ptr.push(ac.col.len());
     }
     mark.fill(NONE);
-    ac.val = vec![0.0; ac.col.len()];
     ac
 }
 
@@ -375,6 +383,7 @@ impl Amg {
         let mut levels: Vec<Level> = Vec::new();
         let mut mark: Vec<usize> = Vec::new();
         let mut size: Vec<f64> = Vec::new();
+        let mut acc: Vec<f64> = Vec::new();
         // The matrix of the level being coarsened: the caller's, then each Galerkin product.
         let mut next: Option<Csr> = None;
         loop {
@@ -404,8 +413,8 @@ impl Amg {
                 &mut mark,
             )?;
             let (r, rpos) = transpose(&p);
-            let mut ac = galerkin_pattern(current, &p, &r, &mut mark);
-            galerkin_values(current, &p, &r, &mut ac, &mut mark);
+            acc.resize(nc, 0.0);
+            let ac = galerkin_product(current, &p, &r, &mut mark, &mut acc);
             let sm = Smoother::new(current);
             let a_level = next.take().unwrap_or_else(Csr::empty);
             levels.push(Level {
