@@ -357,10 +357,11 @@ pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, Option<PathBuf>, RunFile), Cl
     Ok((spec, dir, file))
 }
 
-/// Set by the Ctrl-C handler; runs stop after the current step.
+/// Set by the Ctrl-C handler (also SIGTERM, which a batch scheduler sends before it kills a
+/// job at its time limit, and SIGHUP); runs stop after the current step.
 static INTERRUPTED: AtomicBool = AtomicBool::new(false);
 
-/// Lets Ctrl-C stop runs cleanly (a checkpoint is written) instead of killing them.
+/// Lets Ctrl-C and SIGTERM stop runs cleanly (a checkpoint is written) instead of killing them.
 pub fn interrupt_flag() -> &'static AtomicBool {
     // A second installation (tests calling twice in one process) is harmless to ignore.
     let _ = ctrlc::set_handler(|| INTERRUPTED.store(true, Ordering::SeqCst));

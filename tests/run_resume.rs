@@ -132,6 +132,17 @@ fn a_killed_run_resumes_to_the_same_files_bit_for_bit() {
 
 #[test]
 fn ctrl_c_exits_130_with_a_checkpoint_and_the_run_resumes() {
+    stopped_by_signal_resumes("-INT");
+}
+
+/// SIGTERM is what a batch scheduler sends before it kills a job at its time limit: it stops
+/// the run as Ctrl-C does, with a checkpoint to resume from.
+#[test]
+fn sigterm_exits_130_with_a_checkpoint_and_the_run_resumes() {
+    stopped_by_signal_resumes("-TERM");
+}
+
+fn stopped_by_signal_resumes(signal: &str) {
     let reference = reference();
     let dir = tempfile::tempdir().unwrap();
     let out = dir.path().join("i");
@@ -147,7 +158,7 @@ fn ctrl_c_exits_130_with_a_checkpoint_and_the_run_resumes() {
     }
     if child.try_wait().unwrap().is_none() {
         let status = Command::new("kill")
-            .args(["-INT", &child.id().to_string()])
+            .args([signal, &child.id().to_string()])
             .status()
             .unwrap();
         assert!(status.success());
