@@ -93,6 +93,19 @@ pub struct RunArgs {
     /// [default: 900].
     #[arg(long, value_name = "PX", value_parser = clap::value_parser!(u32).range(320..=8192))]
     pub picture_width: Option<u32>,
+    /// A fixed colour range for the pictures of a field, shared by the whole series (values
+    /// outside take the end colours), e.g. `--range u=0:2`; repeatable.
+    #[arg(
+        long = "range",
+        value_name = "FIELD=LOW:HIGH",
+        allow_hyphen_values = true
+    )]
+    pub ranges: Vec<String>,
+    /// Draw this field's pictures on a logarithmic colour scale (values at or below the low
+    /// end, zero included, take the first colour; without --range the top 6 decades);
+    /// repeatable.
+    #[arg(long = "log-scale", value_name = "FIELD")]
+    pub log_scale: Vec<String>,
     /// Replace the model's initial condition of a species by an expression in x, y and the
     /// parameters, e.g. `--initial 'n=1.2'` (repeatable).
     #[arg(long = "initial", value_name = "NAME=EXPR")]
@@ -283,6 +296,16 @@ pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, Option<PathBuf>, RunFile), Cl
     } else {
         args.pictures.clone()
     };
+    let mut picture_ranges = file.range.clone();
+    for r in &args.ranges {
+        let (field, range) = parse_range(r)?;
+        picture_ranges.insert(field, range);
+    }
+    let picture_log = if args.log_scale.is_empty() {
+        file.log_scale.clone()
+    } else {
+        args.log_scale.clone()
+    };
     let time_unit = args
         .time_unit
         .clone()
@@ -347,6 +370,8 @@ pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, Option<PathBuf>, RunFile), Cl
             .picture_width
             .or(file.picture_width)
             .unwrap_or(DEFAULT_PICTURE_WIDTH),
+        picture_ranges,
+        picture_log,
         vtu,
         time_unit,
         stem,
@@ -355,6 +380,29 @@ pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, Option<PathBuf>, RunFile), Cl
         command_line: std::env::args().collect(),
     };
     Ok((spec, dir, file))
+}
+
+/// `FIELD=LOW:HIGH` of `--range`.
+fn parse_range(text: &str) -> Result<(String, [f64; 2]), CliError> {
+    let bad = |why: &str| {
+        CliError::input(format!(
+            "--range {text}: {why} (expected FIELD=LOW:HIGH, e.g. u=0:2)"
+        ))
+    };
+    let (field, range) = text.split_once('=').ok_or_else(|| bad("no `=`"))?;
+    let (lo, hi) = range
+        .split_once(':')
+        .ok_or_else(|| bad("no `:` between the two ends"))?;
+    let num = |v: &str| {
+        v.trim()
+            .parse::<f64>()
+            .map_err(|_| bad(&format!("`{v}` is not a number")))
+    };
+    let field = field.trim();
+    if field.is_empty() {
+        return Err(bad("no field name"));
+    }
+    Ok((field.to_string(), [num(lo)?, num(hi)?]))
 }
 
 /// Set by the Ctrl-C handler (also SIGTERM, which a batch scheduler sends before it kills a

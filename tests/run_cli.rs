@@ -254,3 +254,92 @@ fn pictures_and_plots_are_written_and_decode() {
     assert!(stderr(&o).contains("--picture nope"), "{}", stderr(&o));
     assert!(!never.exists());
 }
+
+/// The most frequent colour of a picture other than white and near-black (text and outline):
+/// the plate's fill when the field is nearly uniform.
+fn dominant_colour(path: &Path) -> [u8; 3] {
+    let file = std::fs::File::open(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let mut reader = png::Decoder::new(std::io::BufReader::new(file))
+        .read_info()
+        .unwrap();
+    let mut buf = vec![0; reader.output_buffer_size()];
+    let info = reader.next_frame(&mut buf).unwrap();
+    let step = info.color_type.samples();
+    let mut counts = std::collections::HashMap::new();
+    for px in buf[..info.buffer_size()].chunks(step) {
+        let c = [px[0], px[1], px[2]];
+        if c.iter().all(|&v| v > 240) || c.iter().all(|&v| v < 40) {
+            continue;
+        }
+        *counts.entry(c).or_insert(0usize) += 1;
+    }
+    counts.into_iter().max_by_key(|&(_, n)| n).unwrap().0
+}
+
+/// `--range` fixes a field's colour scale across the series and `--log-scale` draws it on
+/// decades (zeros take the first colour instead of failing); bad ranges are refused before
+/// anything is written. The nutrient starts uniform at 1 and barely moves in 0.5 h: on the
+/// range 0..10 it is the dark end of the viridis map, on 0..1.05 its yellow end (the map's
+/// ends: common practice).
+#[test]
+fn fixed_and_log_colour_scales() {
+    let dir = tempfile::tempdir().unwrap();
+    let run = |name: &str, extra: &[&str]| {
+        let out = dir.path().join(name);
+        let mut args = vec![
+            "run".to_string(),
+            model_path("colony_4species.rhai"),
+            "--plate".into(),
+            "circle:4".into(),
+            "--size".into(),
+            "0.4".into(),
+            "--end".into(),
+            "0.5".into(),
+            "--every".into(),
+            "0.25".into(),
+            "--picture".into(),
+            "n".into(),
+            "--picture".into(),
+            "u".into(),
+            "-o".into(),
+            out.to_str().unwrap().into(),
+        ];
+        args.extend(extra.iter().map(|s| s.to_string()));
+        let refs: Vec<&str> = args.iter().map(String::as_str).collect();
+        (agarium(&refs), out)
+    };
+    let (o, wide) = run("wide", &["--range", "n=0:10", "--log-scale", "u"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let (o, tight) = run("tight", &["--range", "n=0:1.05"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    for k in ["0000", "0002"] {
+        let dark = dominant_colour(&wide.join(format!("colony_4species_n_{k}.png")));
+        let bright = dominant_colour(&tight.join(format!("colony_4species_n_{k}.png")));
+        assert!(dark[1] < 90 && dark[2] > 90, "n on 0..10 at {k}: {dark:?}");
+        assert!(
+            bright[0] > 150 && bright[1] > 180,
+            "n on 0..1.05 at {k}: {bright:?}"
+        );
+    }
+    assert!(wide.join("colony_4species_u_0002.png").exists());
+    let m: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(wide.join("run.json")).unwrap()).unwrap();
+    assert_eq!(m["picture_ranges"]["n"], serde_json::json!([0.0, 10.0]));
+    assert_eq!(m["picture_log"], serde_json::json!(["u"]));
+    for (bad, why) in [
+        (&["--range", "n=2:1"][..], "increasing"),
+        (&["--range", "n=0"][..], "FIELD=LOW:HIGH"),
+        (&["--range", "n=a:1"][..], "not a number"),
+        (&["--range", "c=0:1"][..], "not drawn"),
+        (
+            &["--range", "n=0:1", "--log-scale", "n"][..],
+            "positive range",
+        ),
+        (&["--log-scale", "w"][..], "not drawn"),
+    ] {
+        let (o, out) = run("bad", bad);
+        assert_eq!(o.status.code(), Some(2), "{bad:?}: {}", stderr(&o));
+        assert!(stderr(&o).contains(why), "{bad:?}: {}", stderr(&o));
+        assert!(!out.exists(), "{bad:?} wrote {}", out.display());
+    }
+}

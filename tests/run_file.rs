@@ -100,3 +100,34 @@ fn bad_run_files_exit_2_name_the_key_and_line_and_write_nothing() {
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("give the model file"));
 }
+
+/// Colour scales in the run file: `range` per field and `log_scale`; `--range` overrides a
+/// field's range from the file.
+#[test]
+fn picture_scales_come_from_the_run_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = run_file(dir.path(), "");
+    let text = std::fs::read_to_string(&file).unwrap().replace(
+        "time_unit = \"h\"\n",
+        "time_unit = \"h\"\npictures = [\"n\", \"u\"]\nrange = { n = [0.0, 10.0], u = [0.0, 2.0] }\nlog_scale = [\"u\"]\n",
+    );
+    std::fs::write(&file, text).unwrap();
+    let o = agarium(
+        &["run", "--run-file", &file, "--range", "u=0.5:3", "-q"],
+        dir.path(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let m = manifest(&dir.path().join("result"));
+    assert_eq!(m["picture_ranges"]["n"], serde_json::json!([0.0, 10.0]));
+    assert_eq!(m["picture_ranges"]["u"], serde_json::json!([0.5, 3.0]));
+    assert_eq!(m["picture_log"], serde_json::json!(["u"]));
+    // A log scale over a range reaching zero is refused.
+    let o = agarium(&["run", "--run-file", &file, "-q", "-o", "bad"], dir.path());
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        String::from_utf8_lossy(&o.stderr).contains("positive range"),
+        "{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(!dir.path().join("bad").exists());
+}

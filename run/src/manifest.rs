@@ -71,6 +71,12 @@ pub struct Manifest {
     /// Width of the pictures in pixels.
     #[serde(default = "default_picture_width")]
     pub picture_width: u32,
+    /// Fixed colour ranges of pictures, by field.
+    #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+    pub picture_ranges: BTreeMap<String, [f64; 2]>,
+    /// Fields drawn on a logarithmic colour scale.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub picture_log: Vec<String>,
     /// Initial expressions replacing the model's, per species (from `[initial]`,
     /// `[[inoculum]]`, `--initial` and `--inoculum`), as compiled.
     #[serde(default)]

@@ -5,7 +5,7 @@ use std::path::Path;
 use agarium_core::observe::{Diagnostics, DiagnosticsRow, PvdIndex};
 use agarium_core::output::{
     snapshot_title, write_field_png, write_series_png, write_vtu_as, Field, PlotOptions, Series,
-    SnapshotOptions, VtuEncoding,
+    SnapshotOptions, ValueRange, VtuEncoding,
 };
 use agarium_core::time::Simulation;
 
@@ -33,6 +33,11 @@ pub(crate) fn write_pictures(
         let options = SnapshotOptions {
             title: snapshot_title(name, sim.time(), &settings.time_unit),
             width: settings.picture_width,
+            range: match settings.picture_ranges.get(name) {
+                Some(&[min, max]) => ValueRange::Fixed { min, max },
+                None => ValueRange::Auto,
+            },
+            log_scale: settings.picture_log.contains(name),
             ..SnapshotOptions::default()
         };
         let path = dir.join(format!("{stem}_{name}_{k:04}.png"));

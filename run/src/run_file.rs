@@ -7,7 +7,9 @@
 //! end = 24.0
 //! every = 4.0
 //! out = "out/two-spots"
-//! pictures = ["u"]
+//! pictures = ["u", "c"]
+//! range = { u = [0.0, 2.0] }  # a fixed colour range shared by every picture of u
+//! log_scale = ["c"]           # c on a logarithmic colour scale
 //! time_unit = "h"
 //!
 //! [set]
@@ -83,6 +85,12 @@ pub struct RunFile {
     pub picture_times: Vec<f64>,
     /// Width of the pictures in pixels.
     pub picture_width: Option<u32>,
+    /// Fixed colour ranges of pictures, by field: `range = { u = [0.0, 2.0] }`.
+    #[serde(default)]
+    pub range: BTreeMap<String, [f64; 2]>,
+    /// Fields drawn on a logarithmic colour scale.
+    #[serde(default)]
+    pub log_scale: Vec<String>,
     /// zlib level (1–9) of compressed .vtu files; 0 or absent for plain base64.
     pub compress: Option<u32>,
     /// Initial expressions replacing the model's, per species.

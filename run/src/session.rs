@@ -223,6 +223,8 @@ impl Run {
             pictures: spec.pictures,
             picture_times: spec.picture_times,
             picture_width: spec.picture_width,
+            picture_ranges: spec.picture_ranges,
+            picture_log: spec.picture_log,
             initial: spec
                 .initial
                 .expressions()

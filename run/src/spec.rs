@@ -2,6 +2,8 @@
 //! settings. A [`RunSpec`] is a plain value: `run` builds one from the command line and a run
 //! file, a sweep builds one per point by changing a copy.
 
+use std::collections::BTreeMap;
+
 use agarium_core::geometry::PlateSpec;
 use agarium_core::mesh::MeshOptions;
 use agarium_core::output::VtuEncoding;
@@ -41,6 +43,12 @@ pub struct RunSpec {
     pub picture_times: Vec<f64>,
     /// Width of the pictures in pixels.
     pub picture_width: u32,
+    /// Fixed colour ranges `[low, high]` of pictures, by field (a shared scale across the
+    /// series; values outside take the end colours). Fields not named here span their own
+    /// values in each picture.
+    pub picture_ranges: BTreeMap<String, [f64; 2]>,
+    /// Fields drawn on a logarithmic colour scale.
+    pub picture_log: Vec<String>,
     /// How .vtu arrays are stored.
     pub vtu: VtuEncoding,
     /// Name of the model's time unit, for titles.
@@ -78,6 +86,8 @@ impl RunSpec {
             pictures: Vec::new(),
             picture_times: Vec::new(),
             picture_width: DEFAULT_PICTURE_WIDTH,
+            picture_ranges: BTreeMap::new(),
+            picture_log: Vec::new(),
             vtu: VtuEncoding::Base64,
             time_unit: String::new(),
             stem: "run".into(),
@@ -123,9 +133,47 @@ impl RunSpec {
                 self.picture_width
             )));
         }
+        check_picture_scales(&self.pictures, &self.picture_ranges, &mut self.picture_log)?;
         self.plate.check_numbers().map_err(RunError::input)?;
         Ok(())
     }
+}
+
+/// Ranges and log scales name drawn fields; a range is finite and increasing, and positive
+/// for a log scale. Sorts and deduplicates `log`.
+fn check_picture_scales(
+    pictures: &[String],
+    ranges: &BTreeMap<String, [f64; 2]>,
+    log: &mut Vec<String>,
+) -> Result<(), RunError> {
+    log.sort();
+    log.dedup();
+    let drawn = |f: &String, what: &str| -> Result<(), RunError> {
+        if pictures.contains(f) {
+            Ok(())
+        } else {
+            Err(RunError::input(format!(
+                "{what} {f}: `{f}` is not drawn; add --picture {f} (or `pictures` in the run file)"
+            )))
+        }
+    };
+    for (f, &[lo, hi]) in ranges {
+        drawn(f, "range for")?;
+        if !(lo.is_finite() && hi.is_finite() && lo < hi) {
+            return Err(RunError::input(format!(
+                "range for {f}: {lo} to {hi} is not a finite, increasing range"
+            )));
+        }
+        if log.contains(f) && lo <= 0.0 {
+            return Err(RunError::input(format!(
+                "range for {f}: {lo} to {hi}: a log scale needs a positive range"
+            )));
+        }
+    }
+    for f in log.iter() {
+        drawn(f, "log scale for")?;
+    }
+    Ok(())
 }
 
 impl RunSpec {
@@ -150,6 +198,8 @@ impl RunSpec {
             "pictures": self.pictures,
             "picture_times": self.picture_times,
             "picture_width": self.picture_width,
+            "picture_ranges": self.picture_ranges,
+            "picture_log": self.picture_log,
             "vtu": self.vtu,
             "time_unit": self.time_unit,
             "stem": self.stem,

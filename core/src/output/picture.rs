@@ -35,6 +35,9 @@ use text::{Align, Label};
 /// Colour of pixels whose value is NaN (also explained by a swatch under the colour bar).
 pub const NAN_GREY: [u8; 3] = [150, 150, 150];
 
+/// Decades below the largest value an automatic log scale spans at most.
+pub const AUTO_LOG_DECADES: i32 = 6;
+
 /// Entries of the colour look-up table (finer than any visible step of the map).
 const LUT_SIZE: usize = 1024;
 
@@ -83,7 +86,9 @@ pub struct SnapshotOptions {
     pub title: String,
     /// Unit of the values, written above the colour bar; empty for none.
     pub unit: String,
-    /// Logarithmic colour scale; every finite value (and a fixed range) must then be `> 0`.
+    /// Logarithmic colour scale: a fixed range must then be `> 0`; values at or below the
+    /// range's low end (zero and negative ones included) take the first colour. An automatic
+    /// range spans the positive values, at most [`AUTO_LOG_DECADES`] decades below the largest.
     pub log_scale: bool,
 }
 
@@ -205,11 +210,6 @@ impl FieldLayout {
 
 /// Colour scale of a field under `options`, checking the log-scale and range rules.
 fn field_scale(values: &[f64], options: &SnapshotOptions) -> Result<Scale, String> {
-    if options.log_scale {
-        if let Some(v) = values.iter().find(|v| v.is_finite() && **v <= 0.0) {
-            return Err(format!("a log scale needs positive values; found {v}"));
-        }
-    }
     let (lo, hi) = match options.range {
         ValueRange::Fixed { min, max } => {
             if !(min.is_finite() && max.is_finite() && min <= max) {
@@ -223,6 +223,11 @@ fn field_scale(values: &[f64], options: &SnapshotOptions) -> Result<Scale, Strin
             (min, max)
         }
         ValueRange::Auto => match ValueRange::covering(&[values], options.log_scale) {
+            // A density that decays towards zero somewhere would stretch the scale over
+            // dozens of decades: show the top AUTO_LOG_DECADES.
+            Some(ValueRange::Fixed { min, max }) if options.log_scale => {
+                (min.max(max * 10f64.powi(-AUTO_LOG_DECADES)), max)
+            }
             Some(ValueRange::Fixed { min, max }) => (min, max),
             _ if options.log_scale => (1.0, 10.0),
             _ => (0.0, 1.0),

@@ -216,7 +216,7 @@ fn constant_all_nan_and_huge_fields_draw() {
 }
 
 #[test]
-fn log_scale_needs_positive_values_and_bad_input_leaves_no_file() {
+fn log_scale_maps_decades_linearly_and_bad_input_leaves_no_file() {
     let mesh = plate_with_hole();
     let n = mesh.num_nodes();
     let dir = tempfile::tempdir().unwrap();
@@ -226,24 +226,40 @@ fn log_scale_needs_positive_values_and_bad_input_leaves_no_file() {
         unit: "mm⁻²".into(),
         ..SnapshotOptions::default()
     };
-    let positive: Vec<f64> = (0..n).map(|i| 10f64.powf(mesh.node(i)[0] / 2.0)).collect();
+    // Five decades (x from -10 to 10), inside the automatic range's six.
+    let positive: Vec<f64> = (0..n).map(|i| 10f64.powf(mesh.node(i)[0] / 4.0)).collect();
     write_field_png(&path, &mesh, &positive, &log).unwrap();
     let (_, layout) = render_field_with_layout(&mesh, &positive, &log).unwrap();
     let a = nearest_node(&mesh, [-9.0, 0.0]);
     let left = layout.to_pixel(mesh.node(a));
     // log10 of the values is linear in x: halfway along the map at x = 0 from -10 … 10.
     let centre = nearest_node(&mesh, [0.0, 5.0]);
-    let t = (mesh.node(centre)[0] / 2.0 + 5.0) / 10.0;
+    let t = (mesh.node(centre)[0] / 4.0 + 2.5) / 5.0;
     let want = ColourTable::viridis().at(t);
     let got = at(&read(&path), layout.to_pixel(mesh.node(centre)));
     assert!(close(got, want, 8), "{got:?} vs {want:?}");
     assert!(!is_white(at(&read(&path), left)));
     std::fs::remove_file(&path).unwrap();
 
+    // A density that reaches zero somewhere takes the first colour there instead of failing.
     let mut with_zero = positive.clone();
-    with_zero[3] = 0.0;
-    let e = write_field_png(&path, &mesh, &with_zero, &log).unwrap_err();
-    assert!(e.to_string().contains("log scale"), "{e}");
+    with_zero[a] = 0.0;
+    write_field_png(&path, &mesh, &with_zero, &log).unwrap();
+    let first = ColourTable::viridis().at(0.0);
+    let got = at(&read(&path), left);
+    assert!(close(got, first, 8), "{got:?} vs {first:?}");
+    std::fs::remove_file(&path).unwrap();
+    // Ten decades, 10^(x/2) from 1e-5 to 1e5: the automatic range keeps the top six, so the
+    // scale starts at 1e-1 (x = -2) and the left of the plate takes the first colour.
+    let wide: Vec<f64> = (0..n).map(|i| 10f64.powf(mesh.node(i)[0] / 2.0)).collect();
+    write_field_png(&path, &mesh, &wide, &log).unwrap();
+    let got = at(&read(&path), left);
+    assert!(close(got, first, 8), "{got:?} vs {first:?}");
+    let t = (mesh.node(centre)[0] / 2.0 + 1.0) / 6.0;
+    let want = ColourTable::viridis().at(t);
+    let got = at(&read(&path), layout.to_pixel(mesh.node(centre)));
+    assert!(close(got, want, 8), "{got:?} vs {want:?}");
+    std::fs::remove_file(&path).unwrap();
     let fixed = SnapshotOptions {
         range: ValueRange::Fixed {
             min: -1.0,
