@@ -520,6 +520,29 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
 
 /// Runs `agarium resume`.
 pub fn resume(args: &ResumeArgs) -> Result<i32, CliError> {
+    // A run that ended has nothing to resume: say so and touch nothing.
+    let manifest = agarium_run::Manifest::read(&args.folder)?;
+    let folder = args.folder.display();
+    match manifest.exit.as_str() {
+        "reached" => {
+            eprintln!(
+                "{folder}: the run already reached its end time {}; nothing to resume",
+                manifest.end
+            );
+            return Ok(0);
+        }
+        "blow-up" => {
+            eprintln!(
+                "{folder}: the run stopped at a suspected blow-up{}; resuming would stop there again (rerun with a finer mesh to check the verdict)",
+                manifest
+                    .checkpoint_time
+                    .map(|t| format!(" at t = {t}"))
+                    .unwrap_or_default()
+            );
+            return Ok(EXIT_BLOWUP);
+        }
+        _ => {}
+    }
     let run = Run::resume(&args.folder)?;
     execute(run, args.quiet)
 }

@@ -189,3 +189,33 @@ fn resume_refuses_folders_that_are_not_runs() {
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("run.json"));
 }
+
+/// Resuming a run that reached its end says so, exits 0 and leaves every file as it was.
+#[test]
+fn resuming_a_finished_run_changes_nothing() {
+    let reference = reference();
+    let out = reference.path().join("r");
+    let snapshot = || -> Vec<(String, Vec<u8>)> {
+        let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(&out)
+            .unwrap()
+            .map(|e| {
+                let p = e.unwrap().path();
+                (p.display().to_string(), std::fs::read(&p).unwrap())
+            })
+            .collect();
+        v.sort();
+        v
+    };
+    let before = snapshot();
+    let o = agarium()
+        .args(["resume", out.to_str().unwrap()])
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(0));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("already reached its end time"), "{err}");
+    assert!(
+        before == snapshot(),
+        "files changed by resuming a finished run"
+    );
+}
