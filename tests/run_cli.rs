@@ -343,3 +343,43 @@ fn fixed_and_log_colour_scales() {
         assert!(!out.exists(), "{bad:?} wrote {}", out.display());
     }
 }
+
+/// u_t = Δu + u² from u = 1 blows up everywhere at once at t = 1 (the ODE u' = u², whose
+/// solution 1/(1 − t) diffusion leaves alone: common practice). The report says it is a
+/// uniform blow-up, not a concentration, and stops before t = 1.
+#[test]
+fn a_uniform_blow_up_is_told_apart_from_a_concentration() {
+    let dir = tempfile::tempdir().unwrap();
+    let model = dir.path().join("square_growth.rhai");
+    std::fs::write(
+        &model,
+        "param(\"D\", 1.0, #{ unit: \"1\", about: \"diffusivity\", min: 0.0 });\n\
+         species(\"u\", #{ kind: \"mobile\", diffusion: \"D\", reaction: \"u * u\", initial: \"1.0\" });\n",
+    )
+    .unwrap();
+    let out = dir.path().join("o");
+    let o = agarium(&[
+        "run",
+        model.to_str().unwrap(),
+        "--plate",
+        "circle:1",
+        "--size",
+        "0.3",
+        "--end",
+        "2",
+        "-q",
+        "-o",
+        out.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(3), "{}", stderr(&o));
+    let err = stderr(&o);
+    assert!(err.contains("spatially uniform blow-up"), "{err}");
+    assert!(!err.contains("of the mass"), "{err}");
+    let t: f64 = err
+        .split("at t = ")
+        .nth(1)
+        .and_then(|s| s.split(':').next())
+        .and_then(|s| s.trim().parse().ok())
+        .unwrap_or_else(|| panic!("no time in {err}"));
+    assert!((0.95..1.0).contains(&t), "blow-up reported at t = {t}");
+}

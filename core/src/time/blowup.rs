@@ -23,7 +23,14 @@ pub enum BlowupKind {
     StepCollapse,
     /// Mass concentrated at the mesh scale around a growing peak.
     MeshScaleConcentration,
+    /// Step size below the floor while the species grows everywhere at once (its minimum
+    /// at least [`UNIFORM_SHARE`] of its peak): an ODE-type blow-up of the reaction terms,
+    /// not a concentration.
+    UniformGrowth,
 }
+
+/// Minimum over peak from which a collapsing species counts as growing uniformly.
+pub const UNIFORM_SHARE: f64 = 0.5;
 
 /// What a run reports when it stops at a suspected blow-up.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -40,6 +47,8 @@ pub struct BlowupReport {
     pub location: [f64; 2],
     /// Peak value.
     pub peak: f64,
+    /// Smallest value of the species over the plate.
+    pub minimum: f64,
     /// Sup-norm at the start of the run.
     pub initial_peak: f64,
     /// Integral of the species over the plate.
@@ -57,8 +66,20 @@ pub struct BlowupReport {
 impl BlowupReport {
     /// A few lines for a person: what was seen, and how to confirm it.
     pub fn describe(&self) -> String {
+        if self.kind == BlowupKind::UniformGrowth {
+            let mut s = format!(
+                "suspected blow-up of `{}` at t = {:.6e}: the step size collapsed while `{}` grew everywhere at once\n  values {:.6e} to {:.6e} over the whole plate (initially up to {:.6e}): a spatially uniform blow-up of the reaction terms (as of the ODE without diffusion), not a concentration; refining the mesh will not change it",
+                self.species, self.time, self.species, self.minimum, self.peak, self.initial_peak,
+            );
+            if let Some(&(t, dt)) = self.dt_history.last() {
+                s.push_str(&format!("\n  last step: dt = {dt:.3e} at t = {t:.6e}"));
+            }
+            return s;
+        }
         let what = match self.kind {
-            BlowupKind::StepCollapse => "the step size collapsed while the peak kept growing",
+            BlowupKind::StepCollapse | BlowupKind::UniformGrowth => {
+                "the step size collapsed while the peak kept growing"
+            }
             BlowupKind::MeshScaleConcentration => {
                 "the mass gathered at the scale of the mesh around a growing peak"
             }
@@ -220,8 +241,13 @@ impl Monitor {
             }
             let report = self.report(mesh, s, &names[s], u, t);
             if collapse {
+                let uniform = report.minimum >= UNIFORM_SHARE * report.peak;
                 return Some(BlowupReport {
-                    kind: BlowupKind::StepCollapse,
+                    kind: if uniform {
+                        BlowupKind::UniformGrowth
+                    } else {
+                        BlowupKind::StepCollapse
+                    },
                     ..report
                 });
             }
@@ -269,6 +295,7 @@ impl Monitor {
             node,
             location: p,
             peak,
+            minimum: u.iter().copied().fold(f64::INFINITY, f64::min),
             initial_peak: self.initial_sup[s],
             mass,
             mass_near_peak: near,
