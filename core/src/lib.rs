@@ -17,4 +17,5 @@ pub mod mesh;
 pub mod observe;
 pub mod output;
 pub mod problem;
+pub mod stability;
 pub mod time;

@@ -1,0 +1,282 @@
+//! σ(k²): growth rates of Fourier modes about a homogeneous state.
+
+use faer::Mat;
+use serde::Serialize;
+
+use super::{Linearisation, StabilityError};
+
+/// The dispersion relation of one linearisation.
+#[derive(Clone, Debug)]
+pub struct Dispersion {
+    lin: Linearisation,
+}
+
+/// The growth of one mode.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Growth {
+    /// k².
+    pub k2: f64,
+    /// Largest real part of the eigenvalues.
+    pub sigma: f64,
+    /// Imaginary part of that eigenvalue (non-zero: an oscillatory mode).
+    pub omega: f64,
+}
+
+/// The unstable band of k² (σ > 0) and its fastest-growing mode.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Band {
+    /// Lowest unstable k² found (0 when the band reaches k = 0).
+    pub k2_low: f64,
+    /// Highest unstable k² found (infinite when σ stays positive up to the scan's end).
+    pub k2_high: f64,
+    /// The fastest-growing mode.
+    pub fastest: Growth,
+    /// Its wavelength 2π/k in the model's length unit (infinite at k = 0).
+    pub wavelength: f64,
+    /// The fastest mode grows with oscillation (σ complex), a wave instability.
+    pub oscillatory: bool,
+}
+
+impl Dispersion {
+    /// The relation of a linearisation.
+    pub fn new(lin: Linearisation) -> Self {
+        Self { lin }
+    }
+
+    /// The linearisation it was made from.
+    pub fn linearisation(&self) -> &Linearisation {
+        &self.lin
+    }
+
+    /// The matrix J − k²(D + T) with the quasi-steady rows eliminated (Schur complement), as
+    /// a dense matrix over the dynamic species.
+    fn matrix(&self, k2: f64) -> Option<Mat<f64>> {
+        let n = self.lin.n;
+        let a = |r: usize, s: usize| {
+            let d = if r == s { self.lin.diffusion[r] } else { 0.0 };
+            self.lin.jac[r * n + s] - k2 * (d + self.lin.cross[r * n + s])
+        };
+        let dynamic: Vec<usize> = (0..n).filter(|&s| self.lin.dynamic[s]).collect();
+        let quasi: Vec<usize> = (0..n).filter(|&s| !self.lin.dynamic[s]).collect();
+        let (nd, nq) = (dynamic.len(), quasi.len());
+        let mut m = Mat::<f64>::from_fn(nd, nd, |i, j| a(dynamic[i], dynamic[j]));
+        if nq > 0 {
+            // m −= A_dq A_qq⁻¹ A_qd.
+            let aqq = Mat::<f64>::from_fn(nq, nq, |i, j| a(quasi[i], quasi[j]));
+            let aqd = Mat::<f64>::from_fn(nq, nd, |i, j| a(quasi[i], dynamic[j]));
+            let adq = Mat::<f64>::from_fn(nd, nq, |i, j| a(dynamic[i], quasi[j]));
+            let lu = aqq.full_piv_lu();
+            let x = faer::linalg::solvers::Solve::solve(&lu, &aqd);
+            if x.col_iter().any(|c| c.iter().any(|v| !v.is_finite())) {
+                return None;
+            }
+            m -= &adq * &x;
+        }
+        Some(m)
+    }
+
+    /// The mode of largest real part at `k2`.
+    pub fn growth(&self, k2: f64) -> Result<Growth, StabilityError> {
+        let Some(m) = self.matrix(k2) else {
+            // A quasi-steady block singular at this k² (e.g. k = 0 without decay): no
+            // finite growth rate; report it as neutral.
+            return Ok(Growth {
+                k2,
+                sigma: f64::NAN,
+                omega: 0.0,
+            });
+        };
+        if m.nrows() == 0 {
+            return Ok(Growth {
+                k2,
+                sigma: f64::NEG_INFINITY,
+                omega: 0.0,
+            });
+        }
+        let ev = m
+            .eigenvalues()
+            .map_err(|_| StabilityError::Eigen(m.nrows()))?;
+        let best = ev
+            .iter()
+            .copied()
+            .max_by(|a, b| a.re.total_cmp(&b.re))
+            .ok_or(StabilityError::Eigen(m.nrows()))?;
+        Ok(Growth {
+            k2,
+            sigma: best.re,
+            omega: best.im.abs(),
+        })
+    }
+
+    /// σ on `count` values of k² spaced logarithmically from `lo` to `hi` (after k² = 0).
+    pub fn curve(&self, lo: f64, hi: f64, count: usize) -> Result<Vec<Growth>, StabilityError> {
+        let mut v = vec![self.growth(0.0)?];
+        let count = count.max(2);
+        for i in 0..count {
+            let k2 = lo * (hi / lo).powf(i as f64 / (count - 1) as f64);
+            v.push(self.growth(k2)?);
+        }
+        Ok(v)
+    }
+
+    /// The unstable band on the scan `curve` (from [`Dispersion::curve`]), its edges refined
+    /// by bisection and the fastest mode by golden-section search; `None` when no scanned
+    /// mode grows. Growth counts when σ exceeds `tol` (round-off of a neutral mode).
+    pub fn band(&self, curve: &[Growth], tol: f64) -> Result<Option<Band>, StabilityError> {
+        let grows = |g: &Growth| g.sigma > tol;
+        let Some(imax) = (0..curve.len())
+            .filter(|&i| grows(&curve[i]))
+            .max_by(|&a, &b| curve[a].sigma.total_cmp(&curve[b].sigma))
+        else {
+            return Ok(None);
+        };
+        // Edges of the connected unstable interval around the maximum.
+        let mut lo_i = imax;
+        while lo_i > 0 && grows(&curve[lo_i - 1]) {
+            lo_i -= 1;
+        }
+        let mut hi_i = imax;
+        while hi_i + 1 < curve.len() && grows(&curve[hi_i + 1]) {
+            hi_i += 1;
+        }
+        let edge = |a: f64, b: f64| -> Result<f64, StabilityError> {
+            // σ(a) and σ(b) on opposite sides of tol.
+            let (mut a, mut b) = (a, b);
+            let up = self.growth(a)?.sigma > tol;
+            for _ in 0..60 {
+                let m = if a > 0.0 { (a * b).sqrt() } else { 0.5 * (a + b) };
+                if (self.growth(m)?.sigma > tol) == up {
+                    a = m;
+                } else {
+                    b = m;
+                }
+            }
+            Ok(0.5 * (a + b))
+        };
+        let k2_low = if lo_i == 0 {
+            0.0
+        } else {
+            edge(curve[lo_i - 1].k2, curve[lo_i].k2)?
+        };
+        let k2_high = if hi_i + 1 == curve.len() {
+            f64::INFINITY
+        } else {
+            edge(curve[hi_i].k2, curve[hi_i + 1].k2)?
+        };
+        // Golden-section search for the maximum between the scan's neighbours of imax, in
+        // log k² (the scan is logarithmic), at k² = 0 when the maximum is there.
+        let fastest = if imax == 0 {
+            curve[0]
+        } else {
+            let a = curve[imax - 1].k2.max(curve[1].k2 * 1e-3);
+            let b = curve.get(imax + 1).map_or(curve[imax].k2 * 2.0, |g| g.k2);
+            let (mut x0, mut x3) = (a.ln(), b.ln());
+            let r = 0.5 * (5f64.sqrt() - 1.0);
+            let f = |x: f64| self.growth(x.exp());
+            let mut x1 = x3 - r * (x3 - x0);
+            let mut x2 = x0 + r * (x3 - x0);
+            let (mut f1, mut f2) = (f(x1)?.sigma, f(x2)?.sigma);
+            for _ in 0..80 {
+                if f1 > f2 {
+                    x3 = x2;
+                    x2 = x1;
+                    f2 = f1;
+                    x1 = x3 - r * (x3 - x0);
+                    f1 = f(x1)?.sigma;
+                } else {
+                    x0 = x1;
+                    x1 = x2;
+                    f1 = f2;
+                    x2 = x0 + r * (x3 - x0);
+                    f2 = f(x2)?.sigma;
+                }
+            }
+            let best = f(0.5 * (x1 + x2))?;
+            if best.sigma >= curve[imax].sigma {
+                best
+            } else {
+                curve[imax]
+            }
+        };
+        let wavelength = if fastest.k2 > 0.0 {
+            2.0 * std::f64::consts::PI / fastest.k2.sqrt()
+        } else {
+            f64::INFINITY
+        };
+        Ok(Some(Band {
+            k2_low,
+            k2_high,
+            fastest,
+            wavelength,
+            oscillatory: fastest.omega > 1e-9 * fastest.sigma.abs().max(1e-300),
+        }))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The chemotaxis–logistic lawn (1, α/β): J = [[−r, 0], [α, −β]], D = diag(D_u, D_v),
+    /// T[u][v] = −χ·1.
+    fn logistic(chi: f64, d_u: f64, d_v: f64, r: f64, alpha: f64, beta: f64) -> Dispersion {
+        Dispersion::new(Linearisation {
+            n: 2,
+            reaction: vec![0.0, 0.0],
+            jac: vec![-r, 0.0, alpha, -beta],
+            diffusion: vec![d_u, d_v],
+            cross: vec![0.0, -chi, 0.0, 0.0],
+            dynamic: vec![true, true],
+        })
+    }
+
+    /// For unit coefficients and χ = 5, J − k²(D + T) at k² = 1 is [[−2, 5], [1, −2]] with
+    /// eigenvalues −2 ± √5 (direct computation, common practice).
+    #[test]
+    fn unit_coefficients_grow_at_sqrt5_minus_2() {
+        let g = logistic(5.0, 1.0, 1.0, 1.0, 1.0, 1.0).growth(1.0).unwrap();
+        assert!((g.sigma - (5f64.sqrt() - 2.0)).abs() < 1e-12, "{g:?}");
+        assert_eq!(g.omega, 0.0);
+    }
+
+    /// The lawn is unstable iff αχ > (√(D_u β) + √(r D_v))², the fastest k²* = √(rβ/(D_u D_v))
+    /// at threshold (Mimura & Tsujikawa, Physica A 230, 1996; Painter & Hillen, Physica D 240,
+    /// 2011; both recalled from memory): band empty just below, present just above.
+    #[test]
+    fn the_band_opens_at_the_published_threshold() {
+        let (d_u, d_v, r, alpha, beta) = (0.25, 1.0, 1.0, 1.0, 1.0);
+        let chi_c = (((d_u * beta) as f64).sqrt() + ((r * d_v) as f64).sqrt()).powi(2) / alpha;
+        for (chi, unstable) in [(chi_c * 0.999, false), (chi_c * 1.001, true)] {
+            let d = logistic(chi, d_u, d_v, r, alpha, beta);
+            let curve = d.curve(1e-3, 1e3, 400).unwrap();
+            let band = d.band(&curve, 1e-12).unwrap();
+            assert_eq!(band.is_some(), unstable, "chi {chi}: {band:?}");
+            if let Some(b) = band {
+                let k2 = (r * beta / (d_u * d_v)).sqrt();
+                assert!((b.fastest.k2 / k2 - 1.0).abs() < 0.02, "{b:?} vs {k2}");
+                assert!(b.k2_low < k2 && k2 < b.k2_high);
+                assert!(!b.oscillatory);
+            }
+        }
+    }
+
+    /// A quasi-steady signal: 0 = D_c Δc + αu − βc gives σ = −D_u k² + χ α k²/(D_c k² + β) for
+    /// u_t = D_u Δu − χ∇·(u∇c) at ū = 1 without growth (Schur complement, common practice).
+    #[test]
+    fn quasi_steady_species_are_eliminated() {
+        let (d_u, d_c, chi, alpha, beta) = (1.0, 1.0, 3.0, 1.0, 1.0);
+        let d = Dispersion::new(Linearisation {
+            n: 2,
+            reaction: vec![0.0, 0.0],
+            jac: vec![0.0, 0.0, alpha, -beta],
+            diffusion: vec![d_u, d_c],
+            cross: vec![0.0, -chi, 0.0, 0.0],
+            dynamic: vec![true, false],
+        });
+        for k2 in [0.1, 0.5, 1.0, 4.0] {
+            let want = -d_u * k2 + chi * alpha * k2 / (d_c * k2 + beta);
+            let got = d.growth(k2).unwrap().sigma;
+            assert!((got - want).abs() < 1e-12, "k2 {k2}: {got} vs {want}");
+        }
+    }
+}
