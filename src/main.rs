@@ -6,6 +6,7 @@ mod mesh;
 mod plate_args;
 mod progress;
 mod run;
+mod stability;
 mod sweep;
 mod verify;
 
@@ -33,6 +34,9 @@ enum Command {
     /// Run a model over a plan of parameter values (in parallel, or as one shard of a job
     /// array) and tabulate the outcomes; `sweep merge` combines shards.
     Sweep(Box<sweep::SweepArgs>),
+    /// Predict patterns before simulating: homogeneous steady states, the dispersion
+    /// relation, the plate's unstable Neumann modes and parameter thresholds.
+    Stability(Box<stability::StabilityArgs>),
     /// Check the solver against manufactured solutions and published results; print a table
     /// and exit 1 if any check fails.
     Verify(verify::VerifyArgs),
@@ -46,6 +50,7 @@ fn main() {
         Command::Run(args) => run::run(args),
         Command::Resume(args) => run::resume(args),
         Command::Sweep(args) => sweep::run(args),
+        Command::Stability(args) => stability::run(args),
         Command::Verify(args) => verify::run(args),
     };
     match result {

@@ -254,6 +254,15 @@ fn picture_times(mut times: Vec<f64>, end: f64) -> Result<Vec<f64>, CliError> {
 /// The run the command line (and its run file) asks for, the output folder named by either
 /// (if any), and the run file's contents.
 pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, Option<PathBuf>, RunFile), CliError> {
+    spec_with_end(args, None)
+}
+
+/// [`spec_of`] for commands that do not integrate in time: `fallback_end` stands in when
+/// neither the options nor the run file give an end time.
+pub fn spec_with_end(
+    args: &RunArgs,
+    fallback_end: Option<f64>,
+) -> Result<(RunSpec, Option<PathBuf>, RunFile), CliError> {
     let file = match &args.run_file {
         Some(p) => RunFile::read(p)?,
         None => RunFile::default(),
@@ -261,10 +270,10 @@ pub fn spec_of(args: &RunArgs) -> Result<(RunSpec, Option<PathBuf>, RunFile), Cl
     let model_path = args.model.clone().or(file.model.clone()).ok_or_else(|| {
         CliError::input("give the model file (MODEL, or `model` in the --run-file)")
     })?;
-    let end = args
-        .end
-        .or(file.end)
-        .ok_or_else(|| CliError::input("give the end time (--end, or `end` in the --run-file)"))?;
+    let end =
+        args.end.or(file.end).or(fallback_end).ok_or_else(|| {
+            CliError::input("give the end time (--end, or `end` in the --run-file)")
+        })?;
     let end = positive("--end", end)?;
     let every = positive("--every", args.every.or(file.every).unwrap_or(end / 10.0))?;
     let count = agarium_run::output_count(end, every);

@@ -14,6 +14,8 @@
 //! - `initial.rs`: initial-condition overrides and inoculation spots.
 //! - `manifest.rs`: `run.json`, what was run and how it ended.
 //! - `outputs.rs`: states, pictures, plots and the summary table.
+//! - `stability.rs`: pattern prediction (steady states, dispersion relation, plate modes,
+//!   parameter thresholds) for a specification's model and plate.
 //! - `sweep/`: many runs of one base specification over a plan of axes, their table, shards
 //!   and merges.
 
@@ -26,6 +28,7 @@ mod outputs;
 mod run_file;
 mod session;
 mod spec;
+pub mod stability;
 pub mod sweep;
 mod text;
 

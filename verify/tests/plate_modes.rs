@@ -35,7 +35,11 @@ fn unit_disk_eigenvalues_are_the_squared_bessel_derivative_zeros() {
         assert!(w < tol, "h {h}: {:?} vs {exact:?}", modes.eigenvalues);
         // Modes are M-orthonormal.
         let area = |a: &[f64], b: &[f64]| -> f64 {
-            a.iter().zip(b).zip(&m.node_areas).map(|((x, y), w)| x * y * w).sum()
+            a.iter()
+                .zip(b)
+                .zip(&m.node_areas)
+                .map(|((x, y), w)| x * y * w)
+                .sum()
         };
         assert!((area(&modes.modes[1], &modes.modes[1]) - 1.0).abs() < 1e-9);
         assert!(area(&modes.modes[1], &modes.modes[4]).abs() < 1e-8);
@@ -49,12 +53,19 @@ fn rectangle_eigenvalues_are_sums_of_squares() {
     use std::f64::consts::PI;
     let m = mesh("plate-modes", rectangle(0.0, 0.0, 3.0, 2.0), 0.05, None).unwrap();
     let mut exact: Vec<f64> = (0..4)
-        .flat_map(|a| (0..4).map(move |b| (a as f64 * PI / 3.0).powi(2) + (b as f64 * PI / 2.0).powi(2)))
+        .flat_map(|a| {
+            (0..4).map(move |b| (a as f64 * PI / 3.0).powi(2) + (b as f64 * PI / 2.0).powi(2))
+        })
         .collect();
     exact.sort_by(f64::total_cmp);
     let modes = neumann_modes(&m, 8).unwrap();
     let err = relative_errors(&modes.eigenvalues[1..8], &exact[1..8]);
-    assert!(err.iter().all(|&e| e < 0.005), "{:?} vs {:?}", modes.eigenvalues, &exact[..8]);
+    assert!(
+        err.iter().all(|&e| e < 0.005),
+        "{:?} vs {:?}",
+        modes.eigenvalues,
+        &exact[..8]
+    );
 }
 
 #[test]

@@ -119,17 +119,35 @@ impl Dispersion {
         Ok(v)
     }
 
+    /// Whether `g` grows beyond round-off: σ above 1e-9 of the size of J − k²(D + T), so a
+    /// neutral mode (an immobile species, a conserved quantity) does not count.
+    pub fn grows(&self, g: &Growth) -> bool {
+        let l = &self.lin;
+        let jn = l.jac.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+        let dn = l
+            .diffusion
+            .iter()
+            .chain(&l.cross)
+            .fold(0.0f64, |m, v| m.max(v.abs()));
+        g.sigma > 1e-9 * (jn + g.k2 * dn).max(1e-300)
+    }
+
     /// The unstable band on the scan `curve` (from [`Dispersion::curve`]), its edges refined
-    /// by bisection and the fastest mode by golden-section search; `None` when no scanned
-    /// mode grows. Growth counts when σ exceeds `tol` (round-off of a neutral mode).
-    pub fn band(&self, curve: &[Growth], tol: f64) -> Result<Option<Band>, StabilityError> {
-        let grows = |g: &Growth| g.sigma > tol;
+    /// by bisection and the fastest mode by golden-section search; `None` when no mode grows
+    /// ([`Dispersion::grows`]). The maximum is refined before deciding, so a band narrower
+    /// than the scan's spacing (near a threshold) is still found.
+    pub fn band(&self, curve: &[Growth]) -> Result<Option<Band>, StabilityError> {
         let Some(imax) = (0..curve.len())
-            .filter(|&i| grows(&curve[i]))
+            .filter(|&i| curve[i].sigma.is_finite())
             .max_by(|&a, &b| curve[a].sigma.total_cmp(&curve[b].sigma))
         else {
             return Ok(None);
         };
+        let fastest = self.refine_max(curve, imax)?;
+        if !self.grows(&fastest) {
+            return Ok(None);
+        }
+        let grows = |g: &Growth| self.grows(g);
         // Edges of the connected unstable interval around the maximum.
         let mut lo_i = imax;
         while lo_i > 0 && grows(&curve[lo_i - 1]) {
@@ -139,13 +157,23 @@ impl Dispersion {
         while hi_i + 1 < curve.len() && grows(&curve[hi_i + 1]) {
             hi_i += 1;
         }
+        // A band narrower than the scan: its edges lie between the maximum and its neighbours.
+        let (lo_a, hi_b) = if grows(&curve[imax]) {
+            (None, None)
+        } else {
+            (Some(fastest.k2), Some(fastest.k2))
+        };
         let edge = |a: f64, b: f64| -> Result<f64, StabilityError> {
-            // σ(a) and σ(b) on opposite sides of tol.
+            // One end grows and the other does not.
             let (mut a, mut b) = (a, b);
-            let up = self.growth(a)?.sigma > tol;
+            let up = self.grows(&self.growth(a)?);
             for _ in 0..60 {
-                let m = if a > 0.0 { (a * b).sqrt() } else { 0.5 * (a + b) };
-                if (self.growth(m)?.sigma > tol) == up {
+                let m = if a > 0.0 {
+                    (a * b).sqrt()
+                } else {
+                    0.5 * (a + b)
+                };
+                if self.grows(&self.growth(m)?) == up {
                     a = m;
                 } else {
                     b = m;
@@ -153,19 +181,36 @@ impl Dispersion {
             }
             Ok(0.5 * (a + b))
         };
-        let k2_low = if lo_i == 0 {
-            0.0
-        } else {
-            edge(curve[lo_i - 1].k2, curve[lo_i].k2)?
+        let k2_low = match lo_a {
+            Some(inside) if imax > 0 => edge(curve[imax - 1].k2, inside)?,
+            Some(_) => 0.0,
+            None if lo_i == 0 => 0.0,
+            None => edge(curve[lo_i - 1].k2, curve[lo_i].k2)?,
         };
-        let k2_high = if hi_i + 1 == curve.len() {
+        let k2_high = match hi_b {
+            Some(inside) if imax + 1 < curve.len() => edge(inside, curve[imax + 1].k2)?,
+            Some(_) => f64::INFINITY,
+            None if hi_i + 1 == curve.len() => f64::INFINITY,
+            None => edge(curve[hi_i].k2, curve[hi_i + 1].k2)?,
+        };
+        let wavelength = if fastest.k2 > 0.0 {
+            2.0 * std::f64::consts::PI / fastest.k2.sqrt()
+        } else {
             f64::INFINITY
-        } else {
-            edge(curve[hi_i].k2, curve[hi_i + 1].k2)?
         };
-        // Golden-section search for the maximum between the scan's neighbours of imax, in
-        // log k² (the scan is logarithmic), at k² = 0 when the maximum is there.
-        let fastest = if imax == 0 {
+        Ok(Some(Band {
+            k2_low,
+            k2_high,
+            fastest,
+            wavelength,
+            oscillatory: fastest.omega > 1e-9 * fastest.sigma.abs().max(1e-300),
+        }))
+    }
+
+    /// Golden-section search for the maximum of σ between the scan's neighbours of `imax`,
+    /// in log k² (the scan is logarithmic); k² = 0 itself when the maximum is there.
+    fn refine_max(&self, curve: &[Growth], imax: usize) -> Result<Growth, StabilityError> {
+        Ok(if imax == 0 {
             curve[0]
         } else {
             let a = curve[imax - 1].k2.max(curve[1].k2 * 1e-3);
@@ -197,19 +242,7 @@ impl Dispersion {
             } else {
                 curve[imax]
             }
-        };
-        let wavelength = if fastest.k2 > 0.0 {
-            2.0 * std::f64::consts::PI / fastest.k2.sqrt()
-        } else {
-            f64::INFINITY
-        };
-        Ok(Some(Band {
-            k2_low,
-            k2_high,
-            fastest,
-            wavelength,
-            oscillatory: fastest.omega > 1e-9 * fastest.sigma.abs().max(1e-300),
-        }))
+        })
     }
 }
 
@@ -244,16 +277,17 @@ mod tests {
     /// 2011; both recalled from memory): band empty just below, present just above.
     #[test]
     fn the_band_opens_at_the_published_threshold() {
-        let (d_u, d_v, r, alpha, beta) = (0.25, 1.0, 1.0, 1.0, 1.0);
-        let chi_c = (((d_u * beta) as f64).sqrt() + ((r * d_v) as f64).sqrt()).powi(2) / alpha;
-        for (chi, unstable) in [(chi_c * 0.999, false), (chi_c * 1.001, true)] {
+        let (d_u, d_v, r, alpha, beta): (f64, f64, f64, f64, f64) = (0.25, 1.0, 1.0, 1.0, 1.0);
+        let chi_c = ((d_u * beta).sqrt() + (r * d_v).sqrt()).powi(2) / alpha;
+        // 1e-6 either side: the band is then far narrower than the scan's spacing.
+        for (chi, unstable) in [(chi_c * (1.0 - 1e-6), false), (chi_c * (1.0 + 1e-6), true)] {
             let d = logistic(chi, d_u, d_v, r, alpha, beta);
             let curve = d.curve(1e-3, 1e3, 400).unwrap();
-            let band = d.band(&curve, 1e-12).unwrap();
+            let band = d.band(&curve).unwrap();
             assert_eq!(band.is_some(), unstable, "chi {chi}: {band:?}");
             if let Some(b) = band {
                 let k2 = (r * beta / (d_u * d_v)).sqrt();
-                assert!((b.fastest.k2 / k2 - 1.0).abs() < 0.02, "{b:?} vs {k2}");
+                assert!((b.fastest.k2 / k2 - 1.0).abs() < 1e-3, "{b:?} vs {k2}");
                 assert!(b.k2_low < k2 && k2 < b.k2_high);
                 assert!(!b.oscillatory);
             }

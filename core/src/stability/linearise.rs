@@ -54,15 +54,19 @@ pub fn linearise(
     let n = problem.species.len();
     let mut reaction = vec![0.0; n];
     let mut jac = vec![0.0; n * n];
-    at_point(problem.reactions.as_ref(), u, point, &mut reaction, &mut jac)?;
+    at_point(
+        problem.reactions.as_ref(),
+        u,
+        point,
+        &mut reaction,
+        &mut jac,
+    )?;
     // The kernel's Jacobian layout is output-major then species: (o * n + s) per node.
     let diffusion = problem
         .species
         .iter()
         .map(|s| match s.kind {
-            SpeciesKind::Mobile { diffusion } | SpeciesKind::QuasiSteady { diffusion } => {
-                diffusion
-            }
+            SpeciesKind::Mobile { diffusion } | SpeciesKind::QuasiSteady { diffusion } => diffusion,
             SpeciesKind::Immobile => 0.0,
         })
         .collect();

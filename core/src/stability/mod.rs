@@ -22,7 +22,7 @@ pub mod steady;
 
 pub use dispersion::{Band, Dispersion, Growth};
 pub use linearise::{linearise, Linearisation};
-pub use plate_modes::{neumann_modes, PlateModes};
+pub use plate_modes::{neumann_modes, neumann_modes_near, PlateModes};
 pub use steady::{find_steady_states, SteadyClass, SteadyOptions, SteadyState};
 
 use thiserror::Error;

@@ -14,7 +14,7 @@ use serde::Serialize;
 use sprs::TriMat;
 
 use super::StabilityError;
-use crate::linalg::SpdSolver;
+use crate::linalg::{DirectLu, SpdSolver};
 use crate::mesh::Mesh;
 
 /// The lowest Neumann modes of a plate.
@@ -29,6 +29,41 @@ pub struct PlateModes {
 
 /// The `count` lowest Neumann eigenpairs of `mesh`.
 pub fn neumann_modes(mesh: &Mesh, count: usize) -> Result<PlateModes, StabilityError> {
+    modes_near(mesh, count, None)
+}
+
+/// The `count` Neumann eigenpairs of `mesh` nearest `target` (a k² inside an unstable band,
+/// where the lowest modes may be far below), in increasing order. The shifted operator
+/// K − target·M is indefinite, so it is factored by sparse LU instead of Cholesky.
+pub fn neumann_modes_near(
+    mesh: &Mesh,
+    count: usize,
+    target: f64,
+) -> Result<PlateModes, StabilityError> {
+    modes_near(mesh, count, Some(target))
+}
+
+/// Solves with the shifted operator.
+enum Factor {
+    Spd(Box<SpdSolver>),
+    Lu(Box<DirectLu>),
+}
+
+impl Factor {
+    fn solve(&mut self, x: &mut [f64]) -> Result<(), StabilityError> {
+        match self {
+            Factor::Spd(f) => f.solve_in_place(x),
+            Factor::Lu(f) => f.solve_in_place(x),
+        }
+        .map_err(|e| StabilityError::Modes(e.to_string()))
+    }
+}
+
+fn modes_near(
+    mesh: &Mesh,
+    count: usize,
+    target: Option<f64>,
+) -> Result<PlateModes, StabilityError> {
     let n = mesh.num_nodes();
     if count == 0 {
         return Ok(PlateModes {
@@ -44,10 +79,15 @@ pub fn neumann_modes(mesh: &Mesh, count: usize) -> Result<PlateModes, StabilityE
     let m = &mesh.node_areas;
     // Shift of the order of the first non-zero eigenvalue: 1/area of the plate's extent.
     let area: f64 = m.iter().sum();
-    let shift = 1.0 / area;
+    // The operator is K + shift·M: positive definite for the lowest modes, K − target·M
+    // (nudged off an eigenvalue it might hit exactly) for modes near a target.
+    let shift = match target {
+        None => 1.0 / area,
+        Some(t) => -(t * (1.0 + 1e-7) + 1e-9 / area),
+    };
     let mut t = TriMat::new((n, n));
-    for i in 0..n {
-        t.add_triplet(i, i, shift * m[i]);
+    for (i, &mi) in m.iter().enumerate() {
+        t.add_triplet(i, i, shift * mi);
     }
     for (e, &w) in mesh.edges.iter().zip(&mesh.edge_weights) {
         let (i, j) = (e[0], e[1]);
@@ -57,22 +97,30 @@ pub fn neumann_modes(mesh: &Mesh, count: usize) -> Result<PlateModes, StabilityE
         t.add_triplet(j, i, -w);
     }
     let a = t.to_csr();
-    let mut solver = SpdSolver::new(&a).map_err(|e| StabilityError::Modes(e.to_string()))?;
-    let dot = |x: &[f64], y: &[f64]| -> f64 { x.iter().zip(y).zip(m).map(|((a, b), w)| a * b * w).sum() };
+    let mut solver = match target {
+        None => Factor::Spd(Box::new(
+            SpdSolver::new(&a).map_err(|e| StabilityError::Modes(e.to_string()))?,
+        )),
+        Some(_) => Factor::Lu(Box::new(
+            DirectLu::new(&a).map_err(|e| StabilityError::Modes(e.to_string()))?,
+        )),
+    };
+    let dot =
+        |x: &[f64], y: &[f64]| -> f64 { x.iter().zip(y).zip(m).map(|((a, b), w)| a * b * w).sum() };
     // Krylov dimension: enough for the wanted pairs to converge to round-off.
     let steps = (3 * count + 20).min(n - 1);
     let mut basis: Vec<Vec<f64>> = Vec::with_capacity(steps + 1);
     // A start vector with every mode in it (deterministic).
-    let mut q: Vec<f64> = (0..n).map(|i| 1.0 + ((i as f64) * 0.618_033_988_75).fract()).collect();
+    let mut q: Vec<f64> = (0..n)
+        .map(|i| 1.0 + ((i as f64) * 0.618_033_988_75).fract())
+        .collect();
     let nq = dot(&q, &q).sqrt();
     q.iter_mut().for_each(|v| *v /= nq);
     basis.push(q);
     let (mut alpha, mut beta) = (Vec::new(), Vec::new());
     for k in 0..steps {
         let mut w: Vec<f64> = basis[k].iter().zip(m).map(|(v, w)| v * w).collect();
-        solver
-            .solve_in_place(&mut w)
-            .map_err(|e| StabilityError::Modes(e.to_string()))?;
+        solver.solve(&mut w)?;
         let a_k = dot(&w, &basis[k]);
         alpha.push(a_k);
         // Full reorthogonalisation, twice (classical Gram–Schmidt twice is stable).
@@ -100,19 +148,33 @@ pub fn neumann_modes(mesh: &Mesh, count: usize) -> Result<PlateModes, StabilityE
             0.0
         }
     });
-    let eig = tri
-        .self_adjoint_eigen(Side::Lower)
-        .map_err(|_| StabilityError::Modes("the Lanczos matrix's eigenvalues did not converge".into()))?;
+    let eig = tri.self_adjoint_eigen(Side::Lower).map_err(|_| {
+        StabilityError::Modes("the Lanczos matrix's eigenvalues did not converge".into())
+    })?;
     let (s, u) = (eig.S(), eig.U());
-    // θ in increasing order: the largest θ are the lowest λ.
+    // θ = 1/(λ + shift): the largest |θ| are the λ nearest −shift (the lowest for a
+    // positive shift).
     let mut order: Vec<usize> = (0..dim).collect();
-    order.sort_by(|&a, &b| s[b].total_cmp(&s[a]));
+    order.sort_by(|&a, &b| s[b].abs().total_cmp(&s[a].abs()));
     let wanted = count.min(dim);
     let mut eigenvalues = Vec::with_capacity(wanted);
     let mut modes = Vec::with_capacity(wanted);
+    let mut pairs = Vec::with_capacity(wanted);
     for &k in order.iter().take(wanted) {
         let theta = s[k];
-        eigenvalues.push((1.0 / theta - shift).max(0.0));
+        let lambda = 1.0 / theta - shift;
+        pairs.push((
+            if lambda.abs() < 1e-9 / area {
+                0.0
+            } else {
+                lambda.max(0.0)
+            },
+            k,
+        ));
+    }
+    pairs.sort_by(|a, b| a.0.total_cmp(&b.0));
+    for &(lambda, k) in &pairs {
+        eigenvalues.push(lambda);
         let mut phi = vec![0.0; n];
         for (j, b) in basis.iter().take(dim).enumerate() {
             let c = u[(j, k)];

@@ -127,10 +127,16 @@ pub fn find_steady_states(
             continue;
         }
         // Clean round-off negatives of zero components.
-        let u: Vec<f64> = u.iter().map(|&v| if v.abs() <= opts.tol { 0.0 } else { v }).collect();
+        let u: Vec<f64> = u
+            .iter()
+            .map(|&v| if v.abs() <= opts.tol { 0.0 } else { v })
+            .collect();
         let size = 1.0 + u.iter().fold(0.0f64, |m, v| m.max(v.abs()));
         let same = |w: &Vec<f64>| {
-            u.iter().zip(w).fold(0.0f64, |m, (a, b)| m.max((a - b).abs())) <= opts.distinct * size
+            u.iter()
+                .zip(w)
+                .fold(0.0f64, |m, (a, b)| m.max((a - b).abs()))
+                <= opts.distinct * size
         };
         if !found.iter().any(|(w, _)| same(w)) {
             found.push((u, res));
@@ -165,7 +171,9 @@ fn homogeneous_eigenvalues(d: &Dispersion) -> Result<Vec<(f64, f64)>, StabilityE
     let dynamic: Vec<usize> = (0..n).filter(|&s| lin.dynamic[s]).collect();
     let quasi: Vec<usize> = (0..n).filter(|&s| !lin.dynamic[s]).collect();
     let a = |r: usize, s: usize| lin.jac[r * n + s];
-    let mut m = Mat::<f64>::from_fn(dynamic.len(), dynamic.len(), |i, j| a(dynamic[i], dynamic[j]));
+    let mut m = Mat::<f64>::from_fn(dynamic.len(), dynamic.len(), |i, j| {
+        a(dynamic[i], dynamic[j])
+    });
     if !quasi.is_empty() {
         let nq = quasi.len();
         let aqq = Mat::<f64>::from_fn(nq, nq, |i, j| a(quasi[i], quasi[j]));
@@ -190,7 +198,9 @@ fn homogeneous_eigenvalues(d: &Dispersion) -> Result<Vec<(f64, f64)>, StabilityE
 /// Classification from the eigenvalues (real parts within 1e-9 of the largest modulus count
 /// as zero).
 fn classify(ev: &[(f64, f64)]) -> SteadyClass {
-    let scale = ev.iter().fold(1e-300f64, |m, &(re, im)| m.max(re.hypot(im)));
+    let scale = ev
+        .iter()
+        .fold(1e-300f64, |m, &(re, im)| m.max(re.hypot(im)));
     let zero = |re: f64| re.abs() <= 1e-9 * scale;
     if ev.iter().any(|&(re, _)| zero(re)) {
         return SteadyClass::NonHyperbolic;
@@ -252,8 +262,8 @@ mod tests {
             diagnostics: vec![],
         };
         let starts: Vec<Vec<f64>> = (0..=12).map(|k| vec![k as f64 * 0.1]).collect();
-        let s = find_steady_states(&problem, &starts, [0.0, 0.0], &SteadyOptions::default())
-            .unwrap();
+        let s =
+            find_steady_states(&problem, &starts, [0.0, 0.0], &SteadyOptions::default()).unwrap();
         let values: Vec<f64> = s.iter().map(|x| x.values[0]).collect();
         assert_eq!(values.len(), 3, "{values:?}");
         for (got, want) in values.iter().zip([0.0, a, 1.0]) {
