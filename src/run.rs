@@ -3,7 +3,7 @@
 //! progress bar or log lines show how far it is; the outcome becomes the summary on stderr
 //! and the exit code.
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 
 use agarium_core::linalg::{LinearParams, Method};
@@ -134,6 +134,13 @@ pub struct RunArgs {
     /// Print nothing but errors.
     #[arg(short, long)]
     pub quiet: bool,
+    /// Run into an output folder that is not empty: first remove the files a run writes
+    /// there (`run.json`, `checkpoint.bin`, the states, series index, table, pictures and
+    /// plots of the previous run's model and this one's); other files stay. Without it,
+    /// `run` refuses a non-empty folder, so two runs never mix (a sweep instead continues
+    /// its folder).
+    #[arg(long)]
+    pub overwrite: bool,
 }
 
 /// `--scheme` values.
@@ -523,8 +530,70 @@ fn execute(run: Run, quiet: bool) -> Result<i32, CliError> {
 pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     let (spec, dir, _) = spec_of(args)?;
     let dir = dir.unwrap_or_else(|| PathBuf::from("out").join(&spec.stem));
+    let clear = claim_folder(&dir, &spec.stem, args.overwrite)?;
     let run = Run::start(spec, &dir)?;
+    // Only once the new run has been checked (model, plate, mesh, initial data) are the old
+    // files removed, so a refused run leaves the folder as it was.
+    for f in clear {
+        std::fs::remove_file(&f)
+            .map_err(|e| CliError::failure(format!("{}: cannot remove it: {e}", f.display())))?;
+    }
     execute(run, args.quiet)
+}
+
+/// Whether a run may write into `dir`: a missing or empty folder is fine; a non-empty one
+/// only with `overwrite`, and then the files a run writes there (of the previous run's stem
+/// and of `stem`) are returned for removal; anything else stays.
+fn claim_folder(dir: &Path, stem: &str, overwrite: bool) -> Result<Vec<PathBuf>, CliError> {
+    if !dir.exists() {
+        return Ok(Vec::new());
+    }
+    if !dir.is_dir() {
+        return Err(CliError::input(format!(
+            "{}: the output folder is a file; choose another -o",
+            dir.display()
+        )));
+    }
+    let entries: Vec<PathBuf> = std::fs::read_dir(dir)
+        .map_err(|e| CliError::input(format!("{}: {e}", dir.display())))?
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .collect();
+    if entries.is_empty() {
+        return Ok(Vec::new());
+    }
+    let previous = agarium_run::Manifest::read(dir).ok();
+    if !overwrite {
+        let what = match &previous {
+            Some(m) => format!("a run of {} ({})", m.model_file, m.exit),
+            None => format!("{} file(s)", entries.len()),
+        };
+        return Err(CliError::input(format!(
+            "{}: the output folder is not empty (it holds {what}); give --overwrite to replace the run's files, or choose another -o",
+            dir.display()
+        )));
+    }
+    let mut stems = vec![stem.to_string()];
+    if let Some(m) = &previous {
+        if let Some(s) = Path::new(&m.model_file)
+            .file_stem()
+            .and_then(|s| s.to_str())
+        {
+            stems.push(s.to_string());
+        }
+    }
+    Ok(entries
+        .into_iter()
+        .filter(|p| p.is_file())
+        .filter(|p| {
+            let name = p.file_name().and_then(|n| n.to_str()).unwrap_or("");
+            name == agarium_run::MANIFEST
+                || name == agarium_run::CHECKPOINT
+                || (name.starts_with(".agarium-") && name.ends_with(".part"))
+                || stems
+                    .iter()
+                    .any(|s| name == format!("{s}.pvd") || name.starts_with(&format!("{s}_")))
+        })
+        .collect())
 }
 
 /// Runs `agarium resume`.

@@ -383,3 +383,69 @@ fn a_uniform_blow_up_is_told_apart_from_a_concentration() {
         .unwrap_or_else(|| panic!("no time in {err}"));
     assert!((0.95..1.0).contains(&t), "blow-up reported at t = {t}");
 }
+
+/// A second run into a folder that holds a run is refused (exit 2, nothing touched); with
+/// `--overwrite` the old run's files go (also stale higher-numbered states and another
+/// model's files), a file of the user's stays; a refused overwrite (bad initial data) leaves
+/// the old run as it was.
+#[test]
+fn a_non_empty_folder_is_refused_unless_overwrite() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("o");
+    let base = |model: &str, end: &str, extra: &[&str]| -> Output {
+        let mut args = vec![
+            "run".to_string(),
+            model_path(model),
+            "--plate".into(),
+            "circle:3".into(),
+            "--size".into(),
+            "0.5".into(),
+            "--end".into(),
+            end.into(),
+            "--every".into(),
+            "0.25".into(),
+            "-q".into(),
+            "-o".into(),
+            out.display().to_string(),
+        ];
+        args.extend(extra.iter().map(|s| s.to_string()));
+        let refs: Vec<&str> = args.iter().map(String::as_str).collect();
+        agarium(&refs)
+    };
+    let o = base("fisher_kpp.rhai", "1", &[]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    std::fs::write(out.join("notes.txt"), "mine").unwrap();
+    let before = std::fs::read(out.join("run.json")).unwrap();
+    let o = base("fisher_kpp.rhai", "0.5", &[]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("--overwrite"), "{}", stderr(&o));
+    assert_eq!(std::fs::read(out.join("run.json")).unwrap(), before);
+    // A refused run with --overwrite (negative initial data) leaves the old files.
+    let o = base(
+        "fisher_kpp.rhai",
+        "0.5",
+        &["--overwrite", "--initial", "u=-1"],
+    );
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert_eq!(std::fs::read(out.join("run.json")).unwrap(), before);
+    // A shorter run of another model replaces everything of the first.
+    let o = base("nutrient_fronts.rhai", "0.5", &["--overwrite"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let names = files(&out);
+    assert!(
+        names.iter().all(|n| !n.starts_with("fisher_kpp")),
+        "{names:?}"
+    );
+    assert!(
+        names.contains(&"nutrient_fronts_0002.vtu".to_string()),
+        "{names:?}"
+    );
+    assert!(
+        !names.contains(&"nutrient_fronts_0003.vtu".to_string()),
+        "{names:?}"
+    );
+    assert_eq!(
+        std::fs::read_to_string(out.join("notes.txt")).unwrap(),
+        "mine"
+    );
+}

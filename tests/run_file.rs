@@ -65,6 +65,7 @@ fn a_run_file_sets_everything_and_the_command_line_overrides_it() {
             "--rtol",
             "1e-3",
             "-q",
+            "--overwrite",
         ],
         elsewhere.path(),
     );

@@ -30,6 +30,21 @@ pub enum SolveError {
         /// Value.
         value: f64,
     },
+    /// The initial condition is negative somewhere: densities start non-negative (the
+    /// stepper keeps them so and would reject every step).
+    #[error("initial value of `{species}` is negative, {value} at node {node} ({x}, {y}): densities must start non-negative")]
+    NegativeInitial {
+        /// Species.
+        species: String,
+        /// Node.
+        node: usize,
+        /// Coordinates.
+        x: f64,
+        /// Coordinates.
+        y: f64,
+        /// Value.
+        value: f64,
+    },
     /// The quasi-steady species could not be solved for at the start.
     #[error("could not solve for the quasi-steady species at t = {time}: {reason}")]
     QuasiSteadyStart {

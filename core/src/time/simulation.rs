@@ -152,6 +152,20 @@ impl Simulation {
                 value: u0[k],
             });
         }
+        // The stepper's own negativity bound (−1e-12 of the species' largest value).
+        for s in 0..sc {
+            let v = &u0[s * n..(s + 1) * n];
+            let top = v.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+            if let Some(i) = v.iter().position(|&x| x < -1e-12 * top) {
+                return Err(SolveError::NegativeInitial {
+                    species: names[s].clone(),
+                    node: i,
+                    x: disc.x[i],
+                    y: disc.y[i],
+                    value: v[i],
+                });
+            }
+        }
         let all: Vec<usize> = (0..sc).collect();
         let chemotactic: Vec<bool> = (0..sc)
             .map(|s| problem.chemotaxis.iter().any(|c| c.cells == s))
