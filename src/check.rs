@@ -11,7 +11,7 @@ use crate::error::CliError;
 pub struct CheckArgs {
     /// The model file.
     pub model: std::path::PathBuf,
-    /// Override a parameter (repeatable), e.g. `--set chi0=2.5`.
+    /// Override a parameter (repeatable), e.g. `--set chi_0=2.5`.
     #[arg(long = "set", value_name = "NAME=VALUE")]
     pub set: Vec<String>,
 }
@@ -57,6 +57,12 @@ pub fn run(args: &CheckArgs) -> Result<(), CliError> {
     }
     let model = Model::load_file(&args.model, &overrides).map_err(CliError::input)?;
     let compiled = model.compile().map_err(CliError::input)?;
+    // Refuse what `run` refuses (for example a model that declares no species), with the
+    // same message.
+    compiled
+        .to_problem()
+        .validate()
+        .map_err(|e| CliError::input(format!("{}: {e}", args.model.display())))?;
     let d = &model.decl;
 
     println!("model {}", model.file);

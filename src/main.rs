@@ -42,7 +42,30 @@ enum Command {
     Verify(verify::VerifyArgs),
 }
 
+/// Exit status when standard output is closed under us (`agarium … | head`): 128 + SIGPIPE,
+/// what a program killed by the signal reports (common practice).
+const EXIT_CLOSED_PIPE: i32 = 141;
+
+/// `println!` panics when the reader of a pipe has gone; end quietly instead, as programs
+/// killed by SIGPIPE do (Rust ignores the signal, so the write fails instead).
+fn quiet_on_closed_pipe() {
+    let default = std::panic::take_hook();
+    std::panic::set_hook(Box::new(move |info| {
+        let payload = info.payload();
+        let message = payload
+            .downcast_ref::<String>()
+            .map(String::as_str)
+            .or_else(|| payload.downcast_ref::<&str>().copied())
+            .unwrap_or("");
+        if message.contains("Broken pipe") {
+            std::process::exit(EXIT_CLOSED_PIPE);
+        }
+        default(info);
+    }));
+}
+
 fn main() {
+    quiet_on_closed_pipe();
     let cli = Cli::parse();
     let result: Result<i32, CliError> = match &cli.command {
         Command::Mesh(args) => mesh::run(args).map(|()| 0),

@@ -146,3 +146,49 @@ fn warns_on_quasi_positivity_and_zero_diffusion() {
     assert!(out.contains("diffusion coefficient of `u` is 0"), "{out}");
     assert!(out.contains("not finite: reaction of `w` is -inf"), "{out}");
 }
+
+/// `check` refuses what `run` refuses: a model without species, with the same message.
+#[test]
+fn check_refuses_a_model_without_species_as_run_does() {
+    let dir = tempfile::tempdir().unwrap();
+    let empty = dir.path().join("empty.rhai");
+    std::fs::write(&empty, "").unwrap();
+    let path = empty.to_str().unwrap();
+    let check = agarium(&["check", path]);
+    let run = agarium(&[
+        "run",
+        path,
+        "--plate",
+        "circle:1",
+        "--end",
+        "1",
+        "-o",
+        dir.path().join("o").to_str().unwrap(),
+    ]);
+    for o in [&check, &run] {
+        assert_eq!(o.status.code(), Some(2));
+        assert!(
+            String::from_utf8_lossy(&o.stderr).contains("the model declares no species"),
+            "{}",
+            String::from_utf8_lossy(&o.stderr)
+        );
+    }
+}
+
+/// Output into a pipe whose reader has gone (`agarium check … | head -0`) ends quietly with
+/// 128 + SIGPIPE instead of a panic.
+#[test]
+fn a_closed_pipe_ends_quietly() {
+    let model = concat!(env!("CARGO_MANIFEST_DIR"), "/models/colony_4species.rhai");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_agarium"))
+        .args(["check", model])
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    drop(child.stdout.take());
+    let o = child.wait_with_output().unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(141), "{err}");
+    assert!(!err.contains("panicked"), "{err}");
+}
