@@ -94,7 +94,7 @@ pub fn run(args: &CheckArgs) -> Result<(), CliError> {
         .zip(&d.species)
         .map(|(s, sd)| {
             let (kind, diff) = match s.kind {
-                SpeciesKind::Mobile { diffusion } => ("mobile", format!("{diffusion}")),
+                SpeciesKind::Mobile { diffusion } => ("motile", format!("{diffusion}")),
                 SpeciesKind::Immobile => ("immobile", "-".into()),
                 SpeciesKind::QuasiSteady { diffusion } => ("quasi-steady", format!("{diffusion}")),
             };

@@ -61,7 +61,7 @@ impl KindDecl {
     /// The name used in model files.
     pub fn name(self) -> &'static str {
         match self {
-            KindDecl::Mobile => "mobile",
+            KindDecl::Mobile => "motile",
             KindDecl::Immobile => "immobile",
             KindDecl::QuasiSteady => "quasi-steady",
         }
@@ -428,7 +428,8 @@ fn species(s: &Shared, ctx: &NativeCallContext, name: &str, spec: Map) -> RResul
         };
         let kind_name = text(st, kind, &what, p)?;
         let kind = match kind_name.as_str() {
-            "mobile" => KindDecl::Mobile,
+            // "mobile" is the earlier word, still accepted.
+            "motile" | "mobile" => KindDecl::Mobile,
             "immobile" => KindDecl::Immobile,
             "quasi-steady" | "quasi_steady" => KindDecl::QuasiSteady,
             other => {
@@ -436,7 +437,7 @@ fn species(s: &Shared, ctx: &NativeCallContext, name: &str, spec: Map) -> RResul
                     st,
                     p,
                     format!(
-                        "{what}: unknown kind \"{other}\" (use \"mobile\", \"immobile\" or \"quasi-steady\")"
+                        "{what}: unknown kind \"{other}\" (use \"motile\", \"immobile\" or \"quasi-steady\"; \"mobile\" is accepted for \"motile\")"
                     ),
                 )
             }

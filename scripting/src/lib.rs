@@ -12,7 +12,7 @@
 //! param("r", 1.0, #{ unit: "1/h", about: "growth rate", min: 0.0 });
 //! param("D", 0.1, #{ unit: "mm^2/h", min: 0.0 });
 //! fn growth(u, r) { r * u * (1.0 - u) }
-//! species("u", #{ kind: "mobile", diffusion: "D", reaction: Fn("growth"),
+//! species("u", #{ kind: "motile", diffusion: "D", reaction: Fn("growth"),
 //!                 initial: "bump(x, y, 0.0, 0.0, 1.0)" });
 //! integral("mass", "u");
 //! ```

@@ -219,3 +219,22 @@ fn type_errors_are_clear() {
         compile(r#"species("u", #{ kind: "mobile", diffusion: 0.1, reaction: "u * (1 / 0)" });"#);
     assert!(e.to_string().contains("division by zero"), "{e}");
 }
+
+/// Motile cells are declared with the biological word; the earlier `mobile` still works and
+/// means the same.
+#[test]
+fn motile_and_its_earlier_spelling_mobile_are_one_kind() {
+    for kind in ["motile", "mobile"] {
+        let m = load(&format!(
+            "species(\"u\", #{{ kind: \"{kind}\", diffusion: 0.5, reaction: \"u\" }});"
+        ))
+        .unwrap_or_else(|e| panic!("{kind}: {e}"));
+        let p = m.compile().unwrap().to_problem();
+        assert_eq!(
+            p.species[0].kind,
+            agarium_core::kernel::SpeciesKind::Mobile { diffusion: 0.5 }
+        );
+    }
+    let e = load("species(\"u\", #{ kind: \"swimming\", diffusion: 1.0 });").unwrap_err();
+    assert!(e.to_string().contains("\"motile\""), "{e}");
+}
