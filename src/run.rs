@@ -398,6 +398,17 @@ pub fn spec_with_end(
     Ok((spec, dir, file))
 }
 
+/// `LOW:HIGH` as two numbers, or why not (shared by `--range`, `--scan` and `--k2`).
+pub fn low_high(text: &str) -> Result<(f64, f64), String> {
+    let (lo, hi) = text.split_once(':').ok_or("no `:` between the two ends")?;
+    let num = |v: &str| {
+        v.trim()
+            .parse::<f64>()
+            .map_err(|_| format!("`{v}` is not a number"))
+    };
+    Ok((num(lo)?, num(hi)?))
+}
+
 /// `FIELD=LOW:HIGH` of `--range`.
 fn parse_range(text: &str) -> Result<(String, [f64; 2]), CliError> {
     let bad = |why: &str| {
@@ -406,19 +417,12 @@ fn parse_range(text: &str) -> Result<(String, [f64; 2]), CliError> {
         ))
     };
     let (field, range) = text.split_once('=').ok_or_else(|| bad("no `=`"))?;
-    let (lo, hi) = range
-        .split_once(':')
-        .ok_or_else(|| bad("no `:` between the two ends"))?;
-    let num = |v: &str| {
-        v.trim()
-            .parse::<f64>()
-            .map_err(|_| bad(&format!("`{v}` is not a number")))
-    };
     let field = field.trim();
     if field.is_empty() {
         return Err(bad("no field name"));
     }
-    Ok((field.to_string(), [num(lo)?, num(hi)?]))
+    let (lo, hi) = low_high(range).map_err(|why| bad(&why))?;
+    Ok((field.to_string(), [lo, hi]))
 }
 
 /// Set by the Ctrl-C handler (also SIGTERM, which a batch scheduler sends before it kills a

@@ -11,7 +11,7 @@ use agarium_core::output::{
 use agarium_run::stability::{analyse, StabilityOptions, StabilityReport, StateReport};
 
 use crate::error::CliError;
-use crate::run::{spec_with_end, RunArgs};
+use crate::run::{low_high, spec_with_end, RunArgs};
 
 /// Arguments of `agarium stability`.
 #[derive(clap::Args, Debug)]
@@ -35,11 +35,11 @@ pub struct StabilityArgs {
 }
 
 fn pair(text: &str, what: &str) -> Result<(f64, f64), CliError> {
-    let bad = || CliError::input(format!("{what} {text}: expected LOW:HIGH with two numbers"));
-    let (a, b) = text.split_once(':').ok_or_else(bad)?;
-    let a: f64 = a.trim().parse().map_err(|_| bad())?;
-    let b: f64 = b.trim().parse().map_err(|_| bad())?;
-    Ok((a, b))
+    low_high(text).map_err(|why| {
+        CliError::input(format!(
+            "{what} {text}: {why} (expected LOW:HIGH with two numbers)"
+        ))
+    })
 }
 
 /// Runs the command.
@@ -68,9 +68,8 @@ pub fn run(args: &StabilityArgs) -> Result<i32, CliError> {
     let (report, mesh, _) = analyse(&spec, &opts)?;
     if report.states.is_empty() {
         return Err(CliError::input(format!(
-            "{}: no spatially homogeneous steady state found (Newton from {} starts)",
-            spec.model_file,
-            4usize.pow(report.species.len().min(6) as u32) + 1
+            "{}: no spatially homogeneous steady state found (Newton from the mean initial state and a grid around it)",
+            spec.model_file
         )));
     }
     if args.json {

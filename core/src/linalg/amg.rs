@@ -238,9 +238,28 @@ fn restriction_values(p: &Csr, r: &mut Csr, rpos: &[usize]) {
     }
 }
 
+/// Calls `f(j, r_Ii · a_ik · p_kj)` for every product term of row `big_i` of R A P, in one
+/// fixed order (R's row, then A's, then P's), so the fresh product and the refresh sum each
+/// entry identically.
+#[inline(always)]
+fn rap_row(a: &Csr, p: &Csr, r: &Csr, big_i: usize, mut f: impl FnMut(usize, f64)) {
+    let (rc, rv) = r.row(big_i);
+    for (&i, &w) in rc.iter().zip(rv) {
+        let (c, v) = a.row(i);
+        for (&k, &aik) in c.iter().zip(v) {
+            let u = w * aik;
+            let (pc, pv) = p.row(k);
+            for (&j, &pkj) in pc.iter().zip(pv) {
+                f(j, u * pkj);
+            }
+        }
+    }
+}
+
 /// The Galerkin product R A P, pattern and values in one pass (rows sorted). Each entry is
-/// summed in the same order as [`galerkin_values`] sums it, so a later refresh on the same
-/// values reproduces it bit for bit. `acc` is a dense scratch of at least `p.ncols` values.
+/// summed as [`galerkin_values`] sums it (both through [`rap_row`]), so a later refresh on
+/// the same values reproduces it bit for bit. `acc` is a dense scratch of at least
+/// `p.ncols` values.
 fn galerkin_product(a: &Csr, p: &Csr, r: &Csr, mark: &mut [usize], acc: &mut [f64]) -> Csr {
     let nc = p.ncols;
     let mut ac = Csr::empty();
@@ -250,22 +269,14 @@ fn galerkin_product(a: &Csr, p: &Csr, r: &Csr, mark: &mut [usize], acc: &mut [f6
     ac.ptr.push(0);
     for big_i in 0..nc {
         let start = ac.col.len();
-        let (rc, rv) = r.row(big_i);
-        for (&i, &w) in rc.iter().zip(rv) {
-            let (c, v) = a.row(i);
-            for (&k, &aik) in c.iter().zip(v) {
-                let u = w * aik;
-                let (pc, pv) = p.row(k);
-                for (&j, &pkj) in pc.iter().zip(pv) {
-                    if mark[j] != big_i {
-                        mark[j] = big_i;
-                        ac.col.push(j);
-                        acc[j] = 0.0;
-                    }
-                    acc[j] += u * pkj;
-                }
+        rap_row(a, p, r, big_i, |j, t| {
+            if mark[j] != big_i {
+                mark[j] = big_i;
+                ac.col.push(j);
+                acc[j] = 0.0;
             }
-        }
+            acc[j] += t;
+        });
         ac.col[start..].sort_unstable();
         ac.val.extend(ac.col[start..].iter().map(|&j| acc[j]));
         ac.ptr.push(ac.col.len());
@@ -333,17 +344,8 @@ fn galerkin_values(a: &Csr, p: &Csr, r: &Csr, ac: &mut Csr, mark: &mut [usize]) 
             mark[ac.col[q]] = q;
             ac.val[q] = 0.0;
         }
-        let (rc, rv) = r.row(big_i);
-        for (&i, &w) in rc.iter().zip(rv) {
-            let (c, v) = a.row(i);
-            for (&k, &aik) in c.iter().zip(v) {
-                let u = w * aik;
-                let (pc, pv) = p.row(k);
-                for (&j, &pkj) in pc.iter().zip(pv) {
-                    ac.val[mark[j]] += u * pkj;
-                }
-            }
-        }
+        let val = &mut ac.val;
+        rap_row(a, p, r, big_i, |j, t| val[mark[j]] += t);
         for &j in &ac.col[lo..hi] {
             mark[j] = NONE;
         }

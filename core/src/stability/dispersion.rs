@@ -75,37 +75,36 @@ impl Dispersion {
         Some(m)
     }
 
-    /// The mode of largest real part at `k2`.
-    pub fn growth(&self, k2: f64) -> Result<Growth, StabilityError> {
+    /// Eigenvalues (re, im) of J − k²(D + T) over the dynamic species, largest real part
+    /// first; `None` when the quasi-steady block is singular at this k² (e.g. k = 0 without
+    /// decay).
+    pub fn eigenvalues(&self, k2: f64) -> Result<Option<Vec<(f64, f64)>>, StabilityError> {
         let Some(m) = self.matrix(k2) else {
-            // A quasi-steady block singular at this k² (e.g. k = 0 without decay): no
-            // finite growth rate; report it as neutral.
-            return Ok(Growth {
-                k2,
-                sigma: f64::NAN,
-                omega: 0.0,
-            });
+            return Ok(None);
         };
         if m.nrows() == 0 {
-            return Ok(Growth {
-                k2,
-                sigma: f64::NEG_INFINITY,
-                omega: 0.0,
-            });
+            return Ok(Some(Vec::new()));
         }
-        let ev = m
+        let mut ev: Vec<(f64, f64)> = m
             .eigenvalues()
-            .map_err(|_| StabilityError::Eigen(m.nrows()))?;
-        let best = ev
+            .map_err(|_| StabilityError::Eigen(m.nrows()))?
             .iter()
-            .copied()
-            .max_by(|a, b| a.re.total_cmp(&b.re))
-            .ok_or(StabilityError::Eigen(m.nrows()))?;
-        Ok(Growth {
-            k2,
-            sigma: best.re,
-            omega: best.im.abs(),
-        })
+            .map(|z| (z.re, z.im))
+            .collect();
+        ev.sort_by(|a, b| b.0.total_cmp(&a.0).then(b.1.total_cmp(&a.1)));
+        Ok(Some(ev))
+    }
+
+    /// The mode of largest real part at `k2` (σ NaN, a neutral report, where the quasi-steady
+    /// block is singular; −∞ without dynamic species).
+    pub fn growth(&self, k2: f64) -> Result<Growth, StabilityError> {
+        let (sigma, omega) = match self.eigenvalues(k2)? {
+            None => (f64::NAN, 0.0),
+            Some(ev) => ev
+                .first()
+                .map_or((f64::NEG_INFINITY, 0.0), |&(re, im)| (re, im.abs())),
+        };
+        Ok(Growth { k2, sigma, omega })
     }
 
     /// σ on `count` values of k² spaced logarithmically from `lo` to `hi` (after k² = 0).

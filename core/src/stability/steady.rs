@@ -152,47 +152,23 @@ pub fn find_steady_states(
     let mut states = Vec::with_capacity(found.len());
     for (values, residual) in found {
         let lin = linearise(problem, &values, point)?;
-        let eigenvalues = homogeneous_eigenvalues(&Dispersion::new(lin))?;
+        // The k = 0 system, quasi-steady rows eliminated; a quasi-steady block singular at
+        // k = 0 (no decay) leaves no finite spectrum: a neutral state.
+        let (eigenvalues, class) = match Dispersion::new(lin).eigenvalues(0.0)? {
+            Some(ev) => {
+                let class = classify(&ev);
+                (ev, class)
+            }
+            None => (Vec::new(), SteadyClass::NonHyperbolic),
+        };
         states.push(SteadyState {
-            class: classify(&eigenvalues),
+            class,
             values,
             eigenvalues,
             residual,
         });
     }
     Ok(states)
-}
-
-/// Eigenvalues of the k = 0 system (quasi-steady rows eliminated), sorted by real part,
-/// largest first.
-fn homogeneous_eigenvalues(d: &Dispersion) -> Result<Vec<(f64, f64)>, StabilityError> {
-    let lin = d.linearisation();
-    let n = lin.n;
-    let dynamic: Vec<usize> = (0..n).filter(|&s| lin.dynamic[s]).collect();
-    let quasi: Vec<usize> = (0..n).filter(|&s| !lin.dynamic[s]).collect();
-    let a = |r: usize, s: usize| lin.jac[r * n + s];
-    let mut m = Mat::<f64>::from_fn(dynamic.len(), dynamic.len(), |i, j| {
-        a(dynamic[i], dynamic[j])
-    });
-    if !quasi.is_empty() {
-        let nq = quasi.len();
-        let aqq = Mat::<f64>::from_fn(nq, nq, |i, j| a(quasi[i], quasi[j]));
-        let aqd = Mat::<f64>::from_fn(nq, dynamic.len(), |i, j| a(quasi[i], dynamic[j]));
-        let adq = Mat::<f64>::from_fn(dynamic.len(), nq, |i, j| a(dynamic[i], quasi[j]));
-        let x = faer::linalg::solvers::Solve::solve(&aqq.full_piv_lu(), &aqd);
-        m -= &adq * &x;
-    }
-    if m.nrows() == 0 {
-        return Ok(Vec::new());
-    }
-    let mut ev: Vec<(f64, f64)> = m
-        .eigenvalues()
-        .map_err(|_| StabilityError::Eigen(m.nrows()))?
-        .iter()
-        .map(|z| (z.re, z.im))
-        .collect();
-    ev.sort_by(|a, b| b.0.total_cmp(&a.0).then(b.1.total_cmp(&a.1)));
-    Ok(ev)
 }
 
 /// Classification from the eigenvalues (real parts within 1e-9 of the largest modulus count
