@@ -19,7 +19,7 @@
 //! is stored as its own CSR matrix (a contiguous row-by-row pass).
 
 use super::direct::DirectLu;
-use super::ops::Csr;
+use super::ops::{index, Csr};
 use super::precond::Apply;
 use super::LinalgError;
 
@@ -80,7 +80,9 @@ impl Smoother {
         let dpos = (0..a.n)
             .map(|i| {
                 let (c, _) = a.row(i);
-                c.binary_search(&i).map(|k| a.ptr[i] + k).unwrap_or(NONE)
+                c.binary_search(&index(i))
+                    .map(|k| a.ptr[i] + k)
+                    .unwrap_or(NONE)
             })
             .collect();
         let mut sm = Self {
@@ -132,6 +134,7 @@ fn aggregate(a: &Csr) -> (Vec<usize>, usize) {
     for i in 0..n {
         let (c, v) = a.row(i);
         for (&j, &x) in c.iter().zip(v) {
+            let j = j as usize;
             if j != i && x.abs() >= THETA * (d[i] * d[j]).abs().sqrt() && x != 0.0 {
                 scol.push(j);
             }
@@ -183,8 +186,9 @@ fn prolongator_pattern(a: &Csr, agg: &[usize], nc: usize) -> Csr {
     p.ptr.push(0);
     for i in 0..a.n {
         let start = p.col.len();
-        p.col.push(agg[i]);
-        p.col.extend(a.row(i).0.iter().map(|&k| agg[k]));
+        p.col.push(index(agg[i]));
+        p.col
+            .extend(a.row(i).0.iter().map(|&k| index(agg[k as usize])));
         p.col[start..].sort_unstable();
         let mut w = start;
         for r in start..p.col.len() {
@@ -204,7 +208,7 @@ fn prolongator_pattern(a: &Csr, agg: &[usize], nc: usize) -> Csr {
 fn transpose(p: &Csr) -> (Csr, Vec<usize>) {
     let mut ptr = vec![0usize; p.ncols + 1];
     for &j in &p.col {
-        ptr[j + 1] += 1;
+        ptr[j as usize + 1] += 1;
     }
     for j in 0..p.ncols {
         ptr[j + 1] += ptr[j];
@@ -214,8 +218,8 @@ fn transpose(p: &Csr) -> (Csr, Vec<usize>) {
     let mut rpos = vec![0; p.col.len()];
     for i in 0..p.n {
         for q in p.ptr[i]..p.ptr[i + 1] {
-            let j = p.col[q];
-            col[fill[j]] = i;
+            let j = p.col[q] as usize;
+            col[fill[j]] = index(i);
             rpos[fill[j]] = q;
             fill[j] += 1;
         }
@@ -245,12 +249,12 @@ fn restriction_values(p: &Csr, r: &mut Csr, rpos: &[usize]) {
 fn rap_row(a: &Csr, p: &Csr, r: &Csr, big_i: usize, mut f: impl FnMut(usize, f64)) {
     let (rc, rv) = r.row(big_i);
     for (&i, &w) in rc.iter().zip(rv) {
-        let (c, v) = a.row(i);
+        let (c, v) = a.row(i as usize);
         for (&k, &aik) in c.iter().zip(v) {
             let u = w * aik;
-            let (pc, pv) = p.row(k);
+            let (pc, pv) = p.row(k as usize);
             for (&j, &pkj) in pc.iter().zip(pv) {
-                f(j, u * pkj);
+                f(j as usize, u * pkj);
             }
         }
     }
@@ -272,13 +276,14 @@ fn galerkin_product(a: &Csr, p: &Csr, r: &Csr, mark: &mut [usize], acc: &mut [f6
         rap_row(a, p, r, big_i, |j, t| {
             if mark[j] != big_i {
                 mark[j] = big_i;
-                ac.col.push(j);
+                ac.col.push(index(j));
                 acc[j] = 0.0;
             }
             acc[j] += t;
         });
         ac.col[start..].sort_unstable();
-        ac.val.extend(ac.col[start..].iter().map(|&j| acc[j]));
+        ac.val
+            .extend(ac.col[start..].iter().map(|&j| acc[j as usize]));
         ac.ptr.push(ac.col.len());
     }
     mark.fill(NONE);
@@ -297,7 +302,7 @@ fn prolongator_values(
 ) -> Result<(), LinalgError> {
     for (i, d) in diag.iter_mut().enumerate() {
         let (c, v) = a.row(i);
-        *d = c.binary_search(&i).map(|k| v[k]).unwrap_or(0.0);
+        *d = c.binary_search(&index(i)).map(|k| v[k]).unwrap_or(0.0);
         if *d == 0.0 {
             return Err(LinalgError::Singular { index: i });
         }
@@ -317,20 +322,20 @@ fn prolongator_values(
     for i in 0..a.n {
         let (lo, hi) = (p.ptr[i], p.ptr[i + 1]);
         for q in lo..hi {
-            mark[p.col[q]] = q;
+            mark[p.col[q] as usize] = q;
             p.val[q] = 0.0;
         }
         let (c, v) = a.row(i);
         for (&k, &aik) in c.iter().zip(v) {
-            let g = agg[k];
+            let g = agg[k as usize];
             p.val[mark[g]] += aik * size[g];
         }
         let scale = omega / diag[i];
         for q in lo..hi {
             p.val[q] = -(p.val[q] * scale);
-            mark[p.col[q]] = NONE;
+            mark[p.col[q] as usize] = NONE;
         }
-        let own = p.ptr[i] + p.col[lo..hi].partition_point(|&j| j < agg[i]);
+        let own = p.ptr[i] + p.col[lo..hi].partition_point(|&j| (j as usize) < agg[i]);
         p.val[own] += size[agg[i]];
     }
     Ok(())
@@ -341,13 +346,13 @@ fn galerkin_values(a: &Csr, p: &Csr, r: &Csr, ac: &mut Csr, mark: &mut [usize]) 
     for big_i in 0..ac.n {
         let (lo, hi) = (ac.ptr[big_i], ac.ptr[big_i + 1]);
         for q in lo..hi {
-            mark[ac.col[q]] = q;
+            mark[ac.col[q] as usize] = q;
             ac.val[q] = 0.0;
         }
         let val = &mut ac.val;
         rap_row(a, p, r, big_i, |j, t| val[mark[j]] += t);
         for &j in &ac.col[lo..hi] {
-            mark[j] = NONE;
+            mark[j as usize] = NONE;
         }
     }
 }
@@ -365,10 +370,10 @@ fn gauss_seidel(a: &Csr, sm: &Smoother, b: &[f64], x: &mut [f64], forward: bool)
         let (lo, d, hi) = (a.ptr[i], sm.dpos[i], a.ptr[i + 1]);
         let mut s = b[i];
         for (&j, &aij) in a.col[lo..d].iter().zip(&a.val[lo..d]) {
-            s -= aij * x[j];
+            s -= aij * x[j as usize];
         }
         for (&j, &aij) in a.col[d + 1..hi].iter().zip(&a.val[d + 1..hi]) {
-            s -= aij * x[j];
+            s -= aij * x[j as usize];
         }
         x[i] = s * inv;
     };
@@ -376,6 +381,49 @@ fn gauss_seidel(a: &Csr, sm: &Smoother, b: &[f64], x: &mut [f64], forward: bool)
         (0..a.n).for_each(&mut sweep);
     } else {
         (0..a.n).rev().for_each(&mut sweep);
+    }
+}
+
+/// The pre-smoothing sweep of a cycle, which starts from x = 0, fused with the residual it
+/// leaves: x_i = (b_i − Σ_{j<i} a_ij x_j) / a_ii reads only the lower triangle (the upper
+/// one multiplies zeros), and afterwards b − A x has, row by row, the lower triangle and the
+/// diagonal cancelled by construction, so r_i = −Σ_{j>i} a_ij x_j (plus the unsmoothed
+/// b_i − Σ_{j<i} a_ij x_j in a row without usable diagonal, whose x_i is 0). Half the work of
+/// a sweep and a residual, and the same operator as sweeping from zero and forming b − A x,
+/// up to rounding.
+fn presmooth_residual(a: &Csr, sm: &Smoother, b: &[f64], x: &mut [f64], res: &mut [f64]) {
+    // Where row i's strictly upper part starts (past the diagonal, or where the columns
+    // pass i in a row that stores none).
+    let upper = |i: usize| match sm.dpos[i] {
+        NONE => a.ptr[i] + a.col[a.ptr[i]..a.ptr[i + 1]].partition_point(|&j| (j as usize) < i),
+        d => d + 1,
+    };
+    for i in 0..a.n {
+        let lo = a.ptr[i];
+        let d = match sm.dpos[i] {
+            NONE => upper(i),
+            d => d,
+        };
+        let mut s = b[i];
+        for (&j, &aij) in a.col[lo..d].iter().zip(&a.val[lo..d]) {
+            s -= aij * x[j as usize];
+        }
+        let inv = sm.inv[i];
+        if inv == 0.0 {
+            x[i] = 0.0;
+            res[i] = s;
+        } else {
+            x[i] = s * inv;
+            res[i] = 0.0;
+        }
+    }
+    for (i, r) in res.iter_mut().enumerate().take(a.n) {
+        let (d, hi) = (upper(i), a.ptr[i + 1]);
+        let mut s = *r;
+        for (&j, &aij) in a.col[d..hi].iter().zip(&a.val[d..hi]) {
+            s -= aij * x[j as usize];
+        }
+        *r = s;
     }
 }
 
@@ -601,9 +649,7 @@ impl Apply for Amg {
             let (fine, rest) = self.levels.split_at_mut(k + 1);
             let l = &mut fine[k];
             let la: &Csr = if k == 0 { a } else { &l.a };
-            l.x.fill(0.0);
-            gauss_seidel(la, &l.sm, &l.b, &mut l.x, true);
-            la.residual(&l.b, &l.x, &mut l.res);
+            presmooth_residual(la, &l.sm, &l.b, &mut l.x, &mut l.res);
             let next_b = match rest.first_mut() {
                 Some(next) => &mut next.b,
                 None => &mut self.coarse_b,

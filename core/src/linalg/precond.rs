@@ -5,7 +5,7 @@
 //! matrices that fit the `sprs` storage used here.
 
 use super::amg::Amg;
-use super::ops::Csr;
+use super::ops::{index, Csr};
 use super::LinalgError;
 use serde::{Deserialize, Serialize};
 
@@ -74,7 +74,7 @@ impl Jacobi {
         self.inv_diag.resize(a.n, 0.0);
         for (i, di) in self.inv_diag.iter_mut().enumerate() {
             let (c, v) = a.row(i);
-            let d = c.binary_search(&i).map(|k| v[k]).unwrap_or(0.0);
+            let d = c.binary_search(&index(i)).map(|k| v[k]).unwrap_or(0.0);
             if d == 0.0 {
                 return Err(LinalgError::Singular { index: i });
             }
@@ -109,7 +109,7 @@ impl Ilu0 {
         for (i, d) in diag.iter_mut().enumerate() {
             let (c, _) = lu.row(i);
             *d = lu.ptr[i]
-                + c.binary_search(&i)
+                + c.binary_search(&index(i))
                     .map_err(|_| LinalgError::Singular { index: i })?;
         }
         let mut f = Self {
@@ -139,22 +139,22 @@ impl Ilu0 {
         for i in 0..n {
             let (lo, hi) = (lu.ptr[i], lu.ptr[i + 1]);
             for k in lo..hi {
-                pos[lu.col[k]] = k;
+                pos[lu.col[k] as usize] = k;
             }
             for kk in lo..diag[i] {
-                let k = lu.col[kk];
+                let k = lu.col[kk] as usize;
                 let pivot = lu.val[diag[k]];
                 let lik = lu.val[kk] / pivot;
                 lu.val[kk] = lik;
                 for kj in diag[k] + 1..lu.ptr[k + 1] {
-                    let p = pos[lu.col[kj]];
+                    let p = pos[lu.col[kj] as usize];
                     if p != usize::MAX {
                         lu.val[p] -= lik * lu.val[kj];
                     }
                 }
             }
             for k in lo..hi {
-                pos[lu.col[k]] = usize::MAX;
+                pos[lu.col[k] as usize] = usize::MAX;
             }
             let piv = lu.val[diag[i]];
             if piv == 0.0 || !piv.is_finite() {
@@ -171,14 +171,14 @@ impl Apply for Ilu0 {
         for i in 0..lu.n {
             let mut s = r[i];
             for k in lu.ptr[i]..self.diag[i] {
-                s -= lu.val[k] * z[lu.col[k]];
+                s -= lu.val[k] * z[lu.col[k] as usize];
             }
             z[i] = s;
         }
         for i in (0..lu.n).rev() {
             let mut s = z[i];
             for k in self.diag[i] + 1..lu.ptr[i + 1] {
-                s -= lu.val[k] * z[lu.col[k]];
+                s -= lu.val[k] * z[lu.col[k] as usize];
             }
             z[i] = s / lu.val[self.diag[i]];
         }
@@ -224,7 +224,7 @@ pub(crate) fn resolve(kind: Preconditioner, a: &Csr) -> Preconditioner {
             let (cols, vals) = a.row(i);
             let (mut d, mut off) = (0.0, 0.0);
             for (&j, &v) in cols.iter().zip(vals) {
-                if j == i {
+                if j as usize == i {
                     d += v.abs();
                 } else {
                     off += v.abs();
@@ -357,7 +357,7 @@ fn sweep_order(a: &Csr, blocks: usize) -> Vec<usize> {
             let (c, v) = a.row(i);
             let mut t = 0;
             for (&j, &x) in c.iter().zip(v) {
-                while j >= (t + 1) * n {
+                while j as usize >= (t + 1) * n {
                     t += 1;
                 }
                 f[s * blocks + t] += x * x;
@@ -411,7 +411,7 @@ fn next_permutation(v: &mut [usize]) -> bool {
 fn is_diagonal(a: &Csr) -> bool {
     (0..a.n).all(|i| {
         let (c, v) = a.row(i);
-        c.iter().zip(v).all(|(&j, &x)| j == i || x == 0.0)
+        c.iter().zip(v).all(|(&j, &x)| j as usize == i || x == 0.0)
     })
 }
 
@@ -521,10 +521,10 @@ impl Apply for Block {
                     let (c, v) = a.row(s * n + k);
                     let mut acc = *ri;
                     for &t in done {
-                        let lo = c.partition_point(|&j| j < t * n);
-                        let hi = lo + c[lo..].partition_point(|&j| j < (t + 1) * n);
+                        let lo = c.partition_point(|&j| (j as usize) < t * n);
+                        let hi = lo + c[lo..].partition_point(|&j| (j as usize) < (t + 1) * n);
                         for (&j, &x) in c[lo..hi].iter().zip(&v[lo..hi]) {
-                            acc -= x * z[j];
+                            acc -= x * z[j as usize];
                         }
                     }
                     *ri = acc;
@@ -680,6 +680,7 @@ mod tests {
         for i in 0..d.n {
             let (c, v) = d.row(i);
             for (&j, &x) in c.iter().zip(v) {
+                let j = j as usize;
                 t.add_triplet(i, j, x);
                 t.add_triplet(d.n + i, d.n + j, 2.0 * x);
             }
