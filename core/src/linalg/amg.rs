@@ -19,7 +19,7 @@
 //! is stored as its own CSR matrix (a contiguous row-by-row pass).
 
 use super::direct::DirectLu;
-use super::ops::{index, Csr};
+use super::ops::{for_rows, index, Csr};
 use super::precond::Apply;
 use super::LinalgError;
 
@@ -417,14 +417,15 @@ fn presmooth_residual(a: &Csr, sm: &Smoother, b: &[f64], x: &mut [f64], res: &mu
             res[i] = 0.0;
         }
     }
-    for (i, r) in res.iter_mut().enumerate().take(a.n) {
+    let x: &[f64] = x;
+    for_rows(&mut res[..a.n], a.col.len() / 2, |i, r| {
         let (d, hi) = (upper(i), a.ptr[i + 1]);
         let mut s = *r;
         for (&j, &aij) in a.col[d..hi].iter().zip(&a.val[d..hi]) {
             s -= aij * x[j as usize];
         }
         *r = s;
-    }
+    });
 }
 
 impl Amg {
@@ -621,16 +622,14 @@ impl Amg {
 
 /// x_fine += P x_coarse.
 fn prolong_add(p: &Csr, xc: &[f64], x: &mut [f64]) {
-    for (i, xi) in x.iter_mut().enumerate() {
-        *xi += p.row_dot(i, xc);
-    }
+    for_rows(x, p.col.len(), |i, xi| *xi += p.row_dot(i, xc));
 }
 
 /// b_coarse ← R r (each entry summed in fine-row order).
 fn restrict(l: &Level, bc: &mut [f64]) {
-    for (big_i, bi) in bc.iter_mut().enumerate() {
-        *bi = l.r.row_dot(big_i, &l.res);
-    }
+    for_rows(bc, l.r.col.len(), |big_i, bi| {
+        *bi = l.r.row_dot(big_i, &l.res)
+    });
 }
 
 impl Apply for Amg {

@@ -3,7 +3,7 @@
 //! Reductions use several independent accumulators: it breaks the add dependency chain (the
 //! loop vectorises) and the summation order is fixed, so results do not depend on the thread
 //! count. Vectors are never split over threads (at the sizes solved here a thread pool costs
-//! more than it saves); the mat-vec is split over row chunks above [`PAR_ROWS`] rows, each row
+//! more than it saves); row loops (mat-vec, multigrid transfers) are split over row chunks above [`PAR_WORK`] entries, each row
 //! still summed by one thread in order, so it is bitwise the same as the sequential one.
 
 use rayon::prelude::*;
@@ -11,8 +11,32 @@ use sprs::CsMat;
 
 const LANES: usize = 8;
 
-/// Rows from which the mat-vec runs on the rayon pool.
-pub(crate) const PAR_ROWS: usize = 100_000;
+/// Stored entries from which a row loop runs on the rayon pool (the fine levels of 1e5-node
+/// systems and up; below, the pool's hand-off costs about what it saves).
+pub(crate) const PAR_WORK: usize = 200_000;
+/// Rows per parallel task.
+const CHUNK_ROWS: usize = 4096;
+
+/// Calls `f(i, &mut out[i])` for every row i: over row chunks on the rayon pool when the
+/// loop visits at least [`PAR_WORK`] stored entries (`work`), one after another otherwise.
+/// Each row is computed by one thread in its own order, so the results are bitwise those of
+/// the sequential loop whatever the thread count. When no other worker is free, the calling
+/// thread runs every chunk itself (work stealing), so a busy machine costs little.
+pub(crate) fn for_rows(out: &mut [f64], work: usize, f: impl Fn(usize, &mut f64) + Sync) {
+    if work >= PAR_WORK {
+        out.par_chunks_mut(CHUNK_ROWS)
+            .enumerate()
+            .for_each(|(c, chunk)| {
+                for (k, v) in chunk.iter_mut().enumerate() {
+                    f(c * CHUNK_ROWS + k, v);
+                }
+            });
+    } else {
+        for (i, v) in out.iter_mut().enumerate() {
+            f(i, v);
+        }
+    }
+}
 
 /// x · y.
 pub(crate) fn dot(x: &[f64], y: &[f64]) -> f64 {
@@ -129,17 +153,7 @@ impl Csr {
 
     /// y ← A x.
     pub(crate) fn matvec(&self, x: &[f64], y: &mut [f64]) {
-        if self.n >= PAR_ROWS {
-            y.par_chunks_mut(4096).enumerate().for_each(|(c, ys)| {
-                for (k, yi) in ys.iter_mut().enumerate() {
-                    *yi = self.row_dot(c * 4096 + k, x);
-                }
-            });
-        } else {
-            for (i, yi) in y.iter_mut().enumerate() {
-                *yi = self.row_dot(i, x);
-            }
-        }
+        for_rows(y, self.col.len(), |i, yi| *yi = self.row_dot(i, x));
     }
 
     /// r ← b − A x.
@@ -284,7 +298,7 @@ mod tests {
     #[test]
     fn parallel_matvec_is_bitwise_sequential() {
         // A tridiagonal matrix above the parallel threshold against row-by-row sums.
-        let n = PAR_ROWS + 17;
+        let n = PAR_WORK + 17;
         let mut t = sprs::TriMat::new((n, n));
         for i in 0..n {
             t.add_triplet(i, i, 2.0 + (i % 7) as f64 * 0.1);
