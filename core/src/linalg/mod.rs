@@ -13,9 +13,13 @@
 //!   residual; a solve that does not reach the tolerance is [`LinalgError::NotConverged`].
 //! - `precond.rs`: Jacobi, ILU(0), and block preconditioners over species blocks (block
 //!   Gauss–Seidel or block diagonal; an immobile species' diagonal block is inverted exactly).
-//! - `amg.rs`: smoothed-aggregation multigrid V-cycle, aggregates reused on new values.
-//! - `ops.rs`: dot products with 8 accumulators, CSR mat-vec (rayon over row chunks from 1e5
-//!   rows; each row summed in order, so results do not depend on the thread count).
+//! - `amg.rs`: smoothed-aggregation multigrid V-cycle, aggregates reused on new values; the
+//!   pre-smoothing sweep from zero reads only the lower triangle and is fused with its
+//!   residual, which then needs only the upper one.
+//! - `ops.rs`: dot products with 8 accumulators, the solver's own CSR (`u32` columns), and
+//!   `for_rows`, the row loop behind the mat-vec and the multigrid transfers (rayon over row
+//!   chunks from 200,000 stored entries; each row summed in order, so results do not depend
+//!   on the thread count).
 //!
 //! A sequence of systems on one pattern (Newton iterations, time steps) has two ways in:
 //!
