@@ -378,6 +378,15 @@ fn param(
                 },
             );
         }
+        if min > max {
+            return fail(
+                st,
+                ModelError::Declaration {
+                    at: here,
+                    message: format!("{what}: min {min} is above max {max}"),
+                },
+            );
+        }
         if !(value >= min && value <= max) {
             return fail(
                 st,

@@ -21,15 +21,15 @@ pub enum LowerError {
     /// A construct outside the numeric subset.
     #[error(transparent)]
     Unsupported(#[from] Unsupported),
-    /// A name that is no local variable, species, parameter, x, y or t.
-    #[error(
-        "unknown name `{name}` in {context} (not a local variable, species, parameter, x, y or t)"
-    )]
+    /// A name that is none of those the term may use.
+    #[error("unknown name `{name}` in {context} ({allowed})")]
     UnknownName {
         /// The name.
         name: String,
         /// Function or expression it appears in.
         context: String,
+        /// Which names this kind of term may use.
+        allowed: &'static str,
         /// Where.
         pos: Pos,
     },
@@ -157,7 +157,12 @@ pub struct Lowerer<'a> {
     graph: &'a mut Graph,
     funcs: &'a Functions,
     stack: Vec<String>,
+    /// Which free names the term may use, for the unknown-name message.
+    allowed: &'static str,
 }
+
+/// The names a term of the full scope may use.
+pub const ALL_NAMES: &str = "a term may use local variables, species, parameters, x, y and t";
 
 impl<'a> Lowerer<'a> {
     /// A lowerer writing into `graph`, resolving calls in `funcs`.
@@ -166,7 +171,14 @@ impl<'a> Lowerer<'a> {
             graph,
             funcs,
             stack: Vec::new(),
+            allowed: ALL_NAMES,
         }
+    }
+
+    /// Names the free names this term may use (for the unknown-name message).
+    pub fn allowing(mut self, allowed: &'static str) -> Self {
+        self.allowed = allowed;
+        self
     }
 
     /// Lowers an expression whose free names are resolved in `scope`.
@@ -197,6 +209,7 @@ impl<'a> Lowerer<'a> {
                     return Err(LowerError::UnknownName {
                         name: p.clone(),
                         context: format!("the parameter list of `{}`", f.name),
+                        allowed: self.allowed,
                         pos: f.pos,
                     })
                 }
@@ -292,6 +305,7 @@ impl<'a> Lowerer<'a> {
                         LowerError::UnknownName {
                             name: name.clone(),
                             context: self.context(),
+                            allowed: self.allowed,
                             pos: *pos,
                         }
                     })?;
@@ -451,6 +465,7 @@ impl<'a> Lowerer<'a> {
                     return Err(LowerError::UnknownName {
                         name: name.clone(),
                         context: self.context(),
+                        allowed: self.allowed,
                         pos: *pos,
                     })
                 }
@@ -519,13 +534,10 @@ impl<'a> Lowerer<'a> {
                 &format!("`{name}` (which has no integer version)"),
                 pos,
             )),
-            Val::I(_) => Err(LowerError::Type {
-                message: format!(
-                    "`{name}` takes a float; the script engine has no integer version \
-                     (write 2.0, not 2)"
-                ),
-                pos,
-            }),
+            // An integer where a float is meant (`sqrt(6)`): taken as that float. The
+            // script engine itself has no integer `sqrt`; users write integers, and the
+            // value is the same either way.
+            Val::I(i) => Ok(self.graph.konst(i as f64)),
             Val::B(_) => Err(LowerError::Type {
                 message: format!("`{name}` takes a number, not a boolean"),
                 pos,

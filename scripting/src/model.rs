@@ -108,6 +108,8 @@ enum Scope {
 impl Model {
     /// Runs the model file's top-level code with `overrides` applied to the parameters.
     pub fn load(file: &str, source: &str, overrides: &Overrides) -> Result<Model, ModelError> {
+        // A UTF-8 byte-order mark (some editors write one) is not part of the text.
+        let source = source.strip_prefix('\u{feff}').unwrap_or(source);
         let (engine, ast, decl) = run_declarations(file, source, overrides)?;
         let mut funcs = Functions::new();
         let mut signatures = HashMap::new();
@@ -231,6 +233,16 @@ impl Model {
         at: &SourcePos,
     ) -> Result<NodeId, ModelError> {
         let scope = self.scope(g, which);
+        let allowed = match which {
+            Scope::Params => {
+                "a diffusion coefficient is a constant: it may use local variables and \
+                 parameters, not species, x, y or t"
+            }
+            Scope::Space => {
+                "an initial value may use local variables, parameters, x and y, not species or t"
+            }
+            Scope::All => crate::lower::ALL_NAMES,
+        };
         let wrap = |e: LowerError, from_file: bool| {
             let p = e.pos();
             let at = if from_file && p.line > 0 {
@@ -262,7 +274,7 @@ impl Model {
                         at: at.clone(),
                         message: format!("{context}: in expression \"{text}\": {message}"),
                     })?;
-                let mut l = Lowerer::new(g, &self.funcs);
+                let mut l = Lowerer::new(g, &self.funcs).allowing(allowed);
                 l.expression(&e, &scope, &format!("expression \"{text}\""))
                     .map_err(|e| wrap(e, false))
             }
@@ -278,7 +290,7 @@ impl Model {
                         })
                     }
                 };
-                let mut l = Lowerer::new(g, &self.funcs);
+                let mut l = Lowerer::new(g, &self.funcs).allowing(allowed);
                 l.function_by_names(f, &scope).map_err(|e| wrap(e, true))
             }
         }

@@ -211,8 +211,6 @@ fn bad_overrides() {
 
 #[test]
 fn type_errors_are_clear() {
-    let e = compile(r#"species("u", #{ kind: "mobile", diffusion: 0.1, reaction: "exp(2)" });"#);
-    assert!(e.to_string().contains("write 2.0"), "{e}");
     let e = compile(r#"species("u", #{ kind: "mobile", diffusion: 0.1, reaction: "u > 1.0" });"#);
     assert!(e.to_string().contains("boolean"), "{e}");
     let e =
@@ -237,4 +235,78 @@ fn motile_and_its_earlier_spelling_mobile_are_one_kind() {
     }
     let e = load("species(\"u\", #{ kind: \"swimming\", diffusion: 1.0 });").unwrap_err();
     assert!(e.to_string().contains("\"motile\""), "{e}");
+}
+
+/// Evaluates the compiled reaction of a one-species model at u = 0.5, x = y = 0, t = 0.
+fn reaction_at_half(src: &str) -> f64 {
+    use agarium_core::kernel::{BatchKernel, KernelInput, Scratch};
+    let c = load(src).unwrap().compile().unwrap();
+    let u = [0.5];
+    let refs: Vec<&[f64]> = vec![&u];
+    let input = KernelInput {
+        species: &refs,
+        x: &[0.0],
+        y: &[0.0],
+        t: 0.0,
+    };
+    let mut out = vec![0.0; c.reactions.n_outputs()];
+    c.reactions
+        .eval(&input, &mut out, &mut Scratch::new())
+        .unwrap();
+    out[0]
+}
+
+/// Users write `sqrt(6)`: an integer where a float is meant is that float (the script
+/// engine alone would refuse it), with the same value as `sqrt(6.0)`.
+#[test]
+fn integer_arguments_of_float_functions_are_floats() {
+    let int = reaction_at_half(
+        r#"species("u", #{ kind: "motile", diffusion: 0.1, reaction: "sqrt(6) * exp(2) * u" });"#,
+    );
+    let float = reaction_at_half(
+        r#"species("u", #{ kind: "motile", diffusion: 0.1, reaction: "sqrt(6.0) * exp(2.0) * u" });"#,
+    );
+    assert_eq!(int.to_bits(), float.to_bits());
+    assert_eq!(int, 6f64.sqrt() * 2f64.exp() * 0.5);
+}
+
+/// A byte-order mark at the start of a file is not an invisible character error.
+#[test]
+fn a_byte_order_mark_is_accepted() {
+    let m = load(&format!("\u{feff}{OK}")).unwrap();
+    m.compile().unwrap();
+    // Positions on the first line still count from the first visible character.
+    let e =
+        load("\u{feff}species(\"u\", #{ kind: \"motile\", diffusion: 1.0, bad: 1 });").unwrap_err();
+    assert!(e.to_string().starts_with("m.rhai:1:1:"), "{e}");
+}
+
+/// Bounds the wrong way round are named as such, not as a value outside them.
+#[test]
+fn min_above_max_is_named() {
+    let e = load(r#"param("k", 1.0, #{ min: 1.0, max: 0.0 });"#).unwrap_err();
+    let text = e.to_string();
+    assert!(text.contains("min 1 is above max 0"), "{text}");
+    assert!(!text.contains("outside"), "{text}");
+}
+
+/// The unknown-name message says which names that kind of term may use, so it never lists
+/// the very name it refuses.
+#[test]
+fn unknown_names_say_what_the_term_may_use() {
+    let e = compile(r#"species("u", #{ kind: "motile", diffusion: "1.0 + t" });"#);
+    let text = e.to_string();
+    assert!(text.contains("unknown name `t`"), "{text}");
+    assert!(
+        text.contains("a diffusion coefficient is a constant"),
+        "{text}"
+    );
+    assert!(text.contains("not species, x, y or t"), "{text}");
+    let e = compile(r#"species("u", #{ kind: "motile", diffusion: 1.0, initial: "u + x" });"#);
+    assert!(e.to_string().contains("an initial value may use"), "{e}");
+    let e = compile(r#"species("u", #{ kind: "motile", diffusion: 1.0, reaction: "q * u" });"#);
+    assert!(
+        e.to_string().contains("species, parameters, x, y and t"),
+        "{e}"
+    );
 }
