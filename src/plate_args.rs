@@ -5,7 +5,9 @@
 //! `rect:80,50`, `annulus:45,12`, `polygon:0,0;30,0;30,20;0,20`.
 
 use crate::error::CliError;
-use agarium_core::geometry::{read_outline, Cut, PlateSpec, Shape};
+use agarium_core::geometry::{
+    read_outline, trace_file, write_overlay, Cut, PlateSpec, Scale, Shape, TraceError, TraceOptions,
+};
 use agarium_core::mesh::{MeshOptions, Spot};
 use std::path::PathBuf;
 
@@ -16,11 +18,44 @@ pub struct PlateArgs {
     /// (append @X,Y to move the centre of a circle, ellipse, rectangle or annulus).
     // Not required by the parser: `run` may take the plate from a run file, and `spec()`
     // says what is missing.
-    #[arg(long, value_name = "SHAPE", conflicts_with = "outline")]
+    #[arg(long, value_name = "SHAPE", conflicts_with_all = ["outline", "photo"])]
     pub plate: Option<String>,
     /// Outline file: lines of `x y`, loops separated by blank lines (first outer, then holes).
-    #[arg(long, value_name = "FILE")]
+    #[arg(long, value_name = "FILE", conflicts_with = "photo")]
     pub outline: Option<PathBuf>,
+    /// Photograph of the plate (PNG or JPEG): its outline and wells are traced.
+    #[arg(long, value_name = "FILE")]
+    pub photo: Option<PathBuf>,
+    /// Grey level (0-255) above which a pixel is plate [default: Otsu's automatic threshold].
+    #[arg(long, value_name = "LEVEL", requires = "photo")]
+    pub photo_threshold: Option<u8>,
+    /// Take dark pixels as plate.
+    #[arg(long, requires = "photo")]
+    pub photo_invert: bool,
+    /// The plate is the region under pixel X,Y (column, row from the top) [default: the largest].
+    #[arg(long, value_name = "X,Y", requires = "photo")]
+    pub photo_pixel: Option<String>,
+    /// Length per pixel (in the length unit).
+    #[arg(
+        long,
+        value_name = "L",
+        requires = "photo",
+        conflicts_with = "photo_width"
+    )]
+    pub photo_scale: Option<f64>,
+    /// Real width of the plate (its extent along x), instead of --photo-scale.
+    #[arg(long, value_name = "W", requires = "photo")]
+    pub photo_width: Option<f64>,
+    /// Wells and specks smaller than this many pixels are dropped.
+    #[arg(long, value_name = "PX", default_value_t = 16.0, requires = "photo")]
+    pub photo_speck: f64,
+    /// Simplification tolerance in pixels (Douglas-Peucker).
+    #[arg(long, value_name = "PX", default_value_t = 0.7, requires = "photo")]
+    pub photo_tolerance: f64,
+    /// Where to write the photograph with the traced loops drawn on it
+    /// [default: traced-<photo name>.png in the current directory].
+    #[arg(long, value_name = "FILE", requires = "photo")]
+    pub photo_overlay: Option<PathBuf>,
     /// A hole in the plate (well, obstacle), same syntax as --plate; repeatable.
     #[arg(long, value_name = "SHAPE")]
     pub hole: Vec<String>,
@@ -174,14 +209,69 @@ pub fn parse_shape(flag: &str, text: &str) -> Result<Shape, CliError> {
 }
 
 impl PlateArgs {
+    /// Traces --photo and writes its overlay.
+    fn traced(&self) -> Result<(Shape, Vec<Shape>), CliError> {
+        let Some(photo) = &self.photo else {
+            return Err(CliError::input("no --photo given"));
+        };
+        let seed = match &self.photo_pixel {
+            None => None,
+            Some(t) => {
+                let v: Vec<&str> = t.split(',').collect();
+                match (
+                    v.first().map(|s| s.trim().parse::<u32>()),
+                    v.get(1).map(|s| s.trim().parse::<u32>()),
+                ) {
+                    (Some(Ok(x)), Some(Ok(y))) if v.len() == 2 => Some((x, y)),
+                    _ => {
+                        return Err(CliError::input(format!(
+                            "--photo-pixel '{t}': expected two whole numbers X,Y"
+                        )))
+                    }
+                }
+            }
+        };
+        let scale = match (self.photo_scale, self.photo_width) {
+            (_, Some(w)) => Scale::Width(w),
+            (Some(s), None) => Scale::PerPixel(s),
+            (None, None) => {
+                return Err(CliError::input(
+                    "--photo needs a scale: --photo-scale (length per pixel) or --photo-width (the plate's real width)",
+                ))
+            }
+        };
+        let opts = TraceOptions {
+            threshold: self.photo_threshold,
+            invert: self.photo_invert,
+            seed,
+            min_area_px: self.photo_speck,
+            tolerance_px: self.photo_tolerance,
+            scale,
+        };
+        let traced = trace_file(photo, &opts).map_err(|e| match e {
+            TraceError::Unreadable { .. } => CliError::input(e),
+            _ => CliError::input(format!("{}: {e}", photo.display())),
+        })?;
+        let overlay = self.photo_overlay.clone().unwrap_or_else(|| {
+            let stem = photo
+                .file_stem()
+                .map(|s| s.to_string_lossy().into_owned())
+                .unwrap_or_else(|| "photo".into());
+            PathBuf::from(format!("traced-{stem}.png"))
+        });
+        write_overlay(photo, &traced, &overlay).map_err(CliError::input)?;
+        Ok(traced.shapes())
+    }
+
     /// The plate description these options give.
     pub fn spec(&self) -> Result<PlateSpec, CliError> {
         let (outer, mut holes) = match (&self.plate, &self.outline) {
             (Some(text), None) => (parse_shape("--plate", text)?, Vec::new()),
             (None, Some(path)) => read_outline(path).map_err(CliError::input)?,
+            (None, None) if self.photo.is_some() => self.traced()?,
             _ => {
                 return Err(CliError::input(
-                    "give the plate with either --plate or --outline",
+                    "give the plate with --plate, --outline or --photo",
                 ))
             }
         };

@@ -406,3 +406,56 @@ fn crack_loops(region: &[bool], w: usize, h: usize) -> Vec<Vec<Point>> {
 
 #[cfg(test)]
 mod tests;
+
+/// Writes the photograph with the traced loops drawn on it in red, outer and wells alike, with
+/// their corners in yellow, so the user can see what was taken.
+pub fn write_overlay(
+    photo: &Path,
+    traced: &Traced,
+    out: &Path,
+) -> Result<(), crate::output::OutputError> {
+    let enc = |reason: String| crate::output::OutputError::Encode {
+        path: out.to_path_buf(),
+        reason,
+    };
+    let mut img = image::open(photo)
+        .map_err(|e| enc(e.to_string()))?
+        .to_rgb8();
+    let (w, h) = (img.width() as i64, img.height() as i64);
+    let mut put = |x: f64, y: f64, c: [u8; 3]| {
+        let (x, y) = (x.floor() as i64, y.floor() as i64);
+        if x >= 0 && y >= 0 && x < w && y < h {
+            img.put_pixel(x as u32, y as u32, image::Rgb(c));
+        }
+    };
+    for l in &traced.pixel_loops {
+        let n = l.len();
+        for i in 0..n {
+            let (a, b) = (l[i], l[(i + 1) % n]);
+            // Plain sampling along each edge, half a pixel apart (hand-written: one line of
+            // drawing does not justify a drawing crate).
+            let steps = (super::shape::dist(a, b) * 2.0).ceil().max(1.0) as usize;
+            for s in 0..=steps {
+                let t = s as f64 / steps as f64;
+                put(
+                    a[0] + t * (b[0] - a[0]),
+                    a[1] + t * (b[1] - a[1]),
+                    [255, 0, 0],
+                );
+            }
+        }
+        for p in l {
+            put(p[0], p[1], [255, 255, 0]);
+        }
+    }
+    let mut bytes = std::io::Cursor::new(Vec::new());
+    img.write_to(&mut bytes, image::ImageFormat::Png)
+        .map_err(|e| enc(e.to_string()))?;
+    crate::output::write_atomically(out, |wr| {
+        wr.write_all(bytes.get_ref())
+            .map_err(|e| crate::output::OutputError::Io {
+                path: out.to_path_buf(),
+                reason: e.to_string(),
+            })
+    })
+}

@@ -10,7 +10,9 @@ mod validate;
 
 pub use cut::Cut;
 pub use discretise::{shape_rings, subdivide_polygon, Ring, TooManyNodes};
-pub use image_trace::{otsu, trace_file, trace_grey, Scale, TraceError, TraceOptions, Traced};
+pub use image_trace::{
+    otsu, trace_file, trace_grey, write_overlay, Scale, TraceError, TraceOptions, Traced,
+};
 pub use outline_file::{parse_outline, read_outline};
 pub use shape::{dist, polyline_length, ramanujan_perimeter, signed_area, Point, Shape};
 pub use validate::{check_plate, point_in_ring, LoopRole};
