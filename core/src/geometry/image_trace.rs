@@ -2,8 +2,11 @@
 //! region, fill specks, trace its outline and wells, smooth the pixel stairs and simplify.
 //!
 //! Hand-written here, and why: Otsu's threshold, the 4/8-connected labelling and the
-//! crack-edge (marching-squares style) contour tracing are a few dozen lines each, and the
-//! crate that offers them (`imageproc`) was not available offline to this build; the
+//! crack-edge contour tracing are a few dozen lines each. The crate that offers them,
+//! `imageproc` (0.27), needs `image` 0.25 (we decode with 0.24, which `plotters` also uses, so
+//! there would be two) and brings `nalgebra`, `rand` and `rand_distr` even with its default
+//! features off; and its `find_contours` follows pixel centres, whereas the crack edges traced
+//! here enclose exactly the region's pixels, so the traced area is the pixel count. The
 //! Douglas–Peucker simplification is `geo`'s.
 
 use super::shape::{signed_area, Point, Shape};
@@ -133,9 +136,9 @@ pub fn otsu(pixels: &[u8]) -> u8 {
     let total: f64 = pixels.len() as f64;
     let sum_all: f64 = hist.iter().enumerate().map(|(i, h)| i as f64 * h).sum();
     let (mut w0, mut sum0, mut best, mut best_t) = (0.0, 0.0, -1.0, 0u8);
-    for t in 0..256 {
-        w0 += hist[t];
-        sum0 += t as f64 * hist[t];
+    for (t, &count) in hist.iter().enumerate() {
+        w0 += count;
+        sum0 += t as f64 * count;
         let w1 = total - w0;
         if w0 == 0.0 || w1 == 0.0 {
             continue;
@@ -207,6 +210,13 @@ pub fn trace_grey(
         )));
     }
     let (w, h) = (w as usize, h as usize);
+    if w.checked_mul(h) != Some(pixels.len()) {
+        return Err(TraceError::BadOption(format!(
+            "a {w}x{h} picture needs {} grey values, got {}",
+            w.saturating_mul(h),
+            pixels.len()
+        )));
+    }
     let threshold = opts.threshold.unwrap_or_else(|| otsu(pixels));
     let fg: Vec<bool> = pixels
         .iter()

@@ -27,7 +27,14 @@ fn disc_area_and_length_match_the_circle() {
     let t = trace_grey(260, 260, &px, &TraceOptions::default()).expect("traces");
     assert!(t.holes.is_empty());
     let area = signed_area(&t.outer);
+    // Exact: the disc's area pi R^2 and circumference 2 pi R.
     let exact = PI * r * r;
+    eprintln!(
+        "disc R = {r} px: area {area:.1} vs {exact:.1} ({:+.2e} relative), length {:.2} vs {:.2}",
+        (area - exact) / exact,
+        polyline_length(&t.outer, true),
+        2.0 * PI * r
+    );
     // Pixel error: one pixel width along the perimeter.
     assert!(
         (area - exact).abs() < 2.0 * PI * r * 1.0,
@@ -49,6 +56,7 @@ fn disc_with_two_wells_gives_three_loops() {
     );
     let t = trace_grey(260, 260, &px, &TraceOptions::default()).expect("traces");
     assert_eq!(t.holes.len(), 2);
+    eprintln!("two wells: {} loops", 1 + t.holes.len());
     let holes: f64 = t.holes.iter().map(|h| signed_area(h).abs()).sum();
     let exact = PI * (400.0 + 225.0);
     assert!((holes - exact).abs() / exact < 0.05, "{holes} vs {exact}");
@@ -85,6 +93,12 @@ fn specks_change_neither_loops_nor_area() {
         signed_area(&t.outer) - t.holes.iter().map(|h| signed_area(h).abs()).sum::<f64>()
     };
     let (aa, ab) = (area(&a), area(&b));
+    eprintln!(
+        "clean {} loops, area {aa:.1}; noisy {} loops, area {ab:.1} ({:+.2e} relative)",
+        1 + a.holes.len(),
+        1 + b.holes.len(),
+        (ab - aa) / aa
+    );
     assert!((aa - ab).abs() / aa < 0.005, "{aa} vs {ab}");
 }
 
@@ -111,6 +125,15 @@ fn bad_pictures_are_named() {
         trace_grey(w, 40, &half, &TraceOptions::default()).unwrap_err(),
         TraceError::TouchesBorder
     );
+    // A uniformly bright picture: Otsu's threshold keeps everything, which touches the border.
+    assert_eq!(
+        trace_grey(w, 40, &[200u8; 1600], &TraceOptions::default()).unwrap_err(),
+        TraceError::TouchesBorder
+    );
+    assert!(matches!(
+        trace_grey(w, 40, &[200u8; 100], &TraceOptions::default()),
+        Err(TraceError::BadOption(_))
+    ));
     let px = disc(40, 40, (20.0, 20.0), 10.0, &[]);
     let o = TraceOptions {
         seed: Some((1, 1)),
