@@ -5,10 +5,9 @@
 //! `rect:80,50`, `annulus:45,12`, `polygon:0,0;30,0;30,20;0,20`.
 
 use crate::error::CliError;
-use agarium_core::geometry::{
-    read_outline, trace_file, write_overlay, Cut, PlateSpec, Scale, Shape, TraceError, TraceOptions,
-};
+use agarium_core::geometry::{Cut, PlateSpec, Shape};
 use agarium_core::mesh::{MeshOptions, Spot};
+use agarium_run::{PlateSource, ResolvedPlate};
 use std::path::PathBuf;
 
 /// Plate options.
@@ -20,7 +19,9 @@ pub struct PlateArgs {
     // says what is missing.
     #[arg(long, value_name = "SHAPE", conflicts_with_all = ["outline", "photo"])]
     pub plate: Option<String>,
-    /// Outline file: lines of `x y`, loops separated by blank lines (first outer, then holes).
+    /// Outline file: an SVG drawing (.svg: closed paths, the largest is the plate), GeoJSON
+    /// (.geojson/.json: one polygon, first ring the plate) or lines of `x y` (loops separated by
+    /// blank lines, first outer, then holes).
     #[arg(long, value_name = "FILE", conflicts_with = "photo")]
     pub outline: Option<PathBuf>,
     /// Photograph of the plate (PNG or JPEG): its outline and wells are traced.
@@ -46,12 +47,12 @@ pub struct PlateArgs {
     /// Real width of the plate (its extent along x), instead of --photo-scale.
     #[arg(long, value_name = "W", requires = "photo")]
     pub photo_width: Option<f64>,
-    /// Wells and specks smaller than this many pixels are dropped.
-    #[arg(long, value_name = "PX", default_value_t = 16.0, requires = "photo")]
-    pub photo_speck: f64,
-    /// Simplification tolerance in pixels (Douglas-Peucker).
-    #[arg(long, value_name = "PX", default_value_t = 0.7, requires = "photo")]
-    pub photo_tolerance: f64,
+    /// Wells and specks smaller than this many pixels are dropped [default: 16].
+    #[arg(long, value_name = "PX", requires = "photo")]
+    pub photo_speck: Option<f64>,
+    /// Simplification tolerance in pixels (Douglas-Peucker) [default: 0.7].
+    #[arg(long, value_name = "PX", requires = "photo")]
+    pub photo_tolerance: Option<f64>,
     /// Where to write the photograph with the traced loops drawn on it
     /// [default: traced-<photo name>.png in the current directory].
     #[arg(long, value_name = "FILE", requires = "photo")]
@@ -66,7 +67,8 @@ pub struct PlateArgs {
     /// counter-clockwise); repeatable. Applied after every --trim.
     #[arg(long, value_name = "X,Y,FROM,TO", allow_hyphen_values = true)]
     pub wedge: Vec<String>,
-    /// Name of the length unit of all coordinates and sizes (for reports only).
+    /// Name of the length unit of all coordinates and sizes (for reports; an SVG drawn in mm,
+    /// cm, in, pt or pc is converted to it, which must then be mm, cm, m, um or in).
     #[arg(long, value_name = "NAME", default_value = "mm")]
     pub unit: String,
 }
@@ -209,12 +211,14 @@ pub fn parse_shape(flag: &str, text: &str) -> Result<Shape, CliError> {
 }
 
 impl PlateArgs {
-    /// Traces --photo and writes its overlay.
-    fn traced(&self) -> Result<(Shape, Vec<Shape>), CliError> {
-        let Some(photo) = &self.photo else {
-            return Err(CliError::input("no --photo given"));
-        };
-        let seed = match &self.photo_pixel {
+    /// Whether these options name an outer outline (a shape, an outline file or a photograph).
+    pub fn names_a_plate(&self) -> bool {
+        self.plate.is_some() || self.outline.is_some() || self.photo.is_some()
+    }
+
+    /// The plate source these options give: the same value a run file's `[plate]` table reads.
+    pub fn source(&self) -> Result<PlateSource, CliError> {
+        let photo_pixel = match &self.photo_pixel {
             None => None,
             Some(t) => {
                 let v: Vec<&str> = t.split(',').collect();
@@ -222,7 +226,7 @@ impl PlateArgs {
                     v.first().map(|s| s.trim().parse::<u32>()),
                     v.get(1).map(|s| s.trim().parse::<u32>()),
                 ) {
-                    (Some(Ok(x)), Some(Ok(y))) if v.len() == 2 => Some((x, y)),
+                    (Some(Ok(x)), Some(Ok(y))) if v.len() == 2 => Some([x, y]),
                     _ => {
                         return Err(CliError::input(format!(
                             "--photo-pixel '{t}': expected two whole numbers X,Y"
@@ -231,53 +235,20 @@ impl PlateArgs {
                 }
             }
         };
-        let scale = match (self.photo_scale, self.photo_width) {
-            (_, Some(w)) => Scale::Width(w),
-            (Some(s), None) => Scale::PerPixel(s),
-            (None, None) => {
-                return Err(CliError::input(
-                    "--photo needs a scale: --photo-scale (length per pixel) or --photo-width (the plate's real width)",
-                ))
-            }
+        let outer = match &self.plate {
+            Some(text) => Some(parse_shape("--plate", text)?),
+            None => None,
         };
-        let opts = TraceOptions {
-            threshold: self.photo_threshold,
-            invert: self.photo_invert,
-            seed,
-            min_area_px: self.photo_speck,
-            tolerance_px: self.photo_tolerance,
-            scale,
-        };
-        let traced = trace_file(photo, &opts).map_err(|e| match e {
-            TraceError::Unreadable { .. } => CliError::input(e),
-            _ => CliError::input(format!("{}: {e}", photo.display())),
-        })?;
-        let overlay = self.photo_overlay.clone().unwrap_or_else(|| {
-            let stem = photo
-                .file_stem()
-                .map(|s| s.to_string_lossy().into_owned())
-                .unwrap_or_else(|| "photo".into());
-            PathBuf::from(format!("traced-{stem}.png"))
-        });
-        write_overlay(photo, &traced, &overlay).map_err(CliError::input)?;
-        Ok(traced.shapes())
-    }
-
-    /// The plate description these options give.
-    pub fn spec(&self) -> Result<PlateSpec, CliError> {
-        let (outer, mut holes) = match (&self.plate, &self.outline) {
-            (Some(text), None) => (parse_shape("--plate", text)?, Vec::new()),
-            (None, Some(path)) => read_outline(path).map_err(CliError::input)?,
-            (None, None) if self.photo.is_some() => self.traced()?,
-            _ => {
-                return Err(CliError::input(
-                    "give the plate with --plate, --outline or --photo",
-                ))
-            }
-        };
-        for h in &self.hole {
-            holes.push(parse_shape("--hole", h)?);
+        if !self.names_a_plate() {
+            return Err(CliError::input(
+                "give the plate with --plate, --outline or --photo",
+            ));
         }
+        let holes = self
+            .hole
+            .iter()
+            .map(|h| parse_shape("--hole", h))
+            .collect::<Result<Vec<_>, _>>()?;
         let mut cuts = Vec::new();
         for t in &self.trim {
             let v = numbers(&format!("--trim '{t}'"), t, ',').map_err(CliError::input)?;
@@ -304,7 +275,32 @@ impl PlateArgs {
                 to_deg: v[3],
             });
         }
-        Ok(PlateSpec { outer, holes, cuts })
+        Ok(PlateSource {
+            outer,
+            outline: self.outline.clone(),
+            photo: self.photo.clone(),
+            photo_threshold: self.photo_threshold,
+            photo_invert: self.photo_invert,
+            photo_pixel,
+            photo_scale: self.photo_scale,
+            photo_width: self.photo_width,
+            photo_speck: self.photo_speck,
+            photo_tolerance: self.photo_tolerance,
+            photo_overlay: self.photo_overlay.clone(),
+            unit: Some(self.unit.clone()),
+            holes,
+            cuts,
+        })
+    }
+
+    /// The plate these options give, with the names of its loops.
+    pub fn resolve(&self) -> Result<ResolvedPlate, CliError> {
+        Ok(self.source()?.resolve()?)
+    }
+
+    /// The plate description these options give.
+    pub fn spec(&self) -> Result<PlateSpec, CliError> {
+        Ok(self.resolve()?.spec)
     }
 }
 
