@@ -209,3 +209,53 @@ fn run_files_name_outline_files_and_photographs() {
         assert!(!d.join("refused").exists());
     }
 }
+
+#[test]
+fn the_readme_outline_examples_work() {
+    let readme =
+        std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/README.md")).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    // The mesh commands, run from the repository with the pictures sent to the temp folder.
+    let commands: Vec<&str> = readme
+        .lines()
+        .filter(|l| l.starts_with("agarium mesh --outline examples/plates/"))
+        .collect();
+    assert_eq!(commands.len(), 2, "{commands:?}");
+    for line in commands {
+        let mut args: Vec<String> = line.split_whitespace().skip(1).map(String::from).collect();
+        if let Some(k) = args.iter().position(|a| a == "--png") {
+            args[k + 1] = dir.path().join(&args[k + 1]).display().to_string();
+        }
+        let refs: Vec<&str> = args.iter().map(String::as_str).collect();
+        let o = agarium(&refs, Path::new(env!("CARGO_MANIFEST_DIR")));
+        assert!(o.status.success(), "{line}: {}", stderr(&o));
+    }
+    // The run file's [plate] table, with the bundled drawing at the relative path it names.
+    let start = readme
+        .find("```toml\n[plate]\noutline")
+        .expect("plate block")
+        + 8;
+    let end = start + readme[start..].find("```").unwrap();
+    std::fs::create_dir_all(dir.path().join("plates")).unwrap();
+    std::fs::create_dir_all(dir.path().join("runs")).unwrap();
+    std::fs::copy(
+        example("bean-dish.svg"),
+        dir.path().join("plates/bean-dish.svg"),
+    )
+    .unwrap();
+    let model = concat!(env!("CARGO_MANIFEST_DIR"), "/models/colony_4species.rhai");
+    let text = format!(
+        "model = \"{model}\"\nend = 0.01\nevery = 0.01\nout = \"result\"\n\n{}\n[mesh]\nsize = 2.0\n",
+        &readme[start..end]
+    );
+    let rf = dir.path().join("runs/plate-run.toml");
+    std::fs::write(&rf, text).unwrap();
+    let o = agarium(
+        &["run", "--run-file", &rf.display().to_string()],
+        dir.path(),
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let m = manifest(&dir.path().join("runs/result"));
+    // The drawing's two wells and the table's hole.
+    assert_eq!(m["plate"]["holes"].as_array().unwrap().len(), 3);
+}
