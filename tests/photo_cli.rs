@@ -120,6 +120,25 @@ fn bad_pictures_exit_2_with_a_message() {
         "{}",
         stderr(&o)
     );
+    // No closed region: a uniformly bright picture is all plate, up to the border.
+    let file = std::fs::File::create(dir.path().join("blank.png")).unwrap();
+    let mut enc = png::Encoder::new(std::io::BufWriter::new(file), 30, 30);
+    enc.set_color(png::ColorType::Grayscale);
+    enc.set_depth(png::BitDepth::Eight);
+    enc.write_header()
+        .unwrap()
+        .write_image_data(&[200u8; 900])
+        .unwrap();
+    let o = agarium(
+        &["mesh", "--photo", "blank.png", "--photo-scale", "0.1"],
+        dir.path(),
+    );
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("blank.png: the plate region touches the picture's border"),
+        "{}",
+        stderr(&o)
+    );
     let o = agarium(&["mesh", "--photo", "plate.png"], dir.path());
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("needs a scale"), "{}", stderr(&o));
