@@ -62,7 +62,8 @@ pub fn run(args: &MeshArgs) -> Result<(), CliError> {
             args.png_pixels
         )));
     }
-    let spec = args.plate.spec()?;
+    let resolved = args.plate.resolve()?;
+    let spec = resolved.spec;
     spec.check_numbers().map_err(CliError::input)?;
     let options = args.meshing.options(&spec)?;
     let built = build_mesh(&spec, &options).map_err(|e| match e {
@@ -132,6 +133,9 @@ pub fn run(args: &MeshArgs) -> Result<(), CliError> {
         let mut value = serde_json::to_value(&report).map_err(CliError::failure)?;
         if let Some(obj) = value.as_object_mut() {
             obj.insert("unit".into(), args.plate.unit.clone().into());
+            if !resolved.loop_names.is_empty() {
+                obj.insert("loop_names".into(), serde_json::json!(resolved.loop_names));
+            }
         }
         println!(
             "{}",
@@ -139,6 +143,15 @@ pub fn run(args: &MeshArgs) -> Result<(), CliError> {
         );
     } else {
         print!("{}", report.table(&args.plate.unit));
+        if !resolved.loop_names.is_empty() {
+            let names: Vec<String> = resolved
+                .loop_names
+                .iter()
+                .enumerate()
+                .map(|(k, n)| format!("{k}: {}", n.as_deref().unwrap_or("-")))
+                .collect();
+            println!("{:<28} {}", "boundary loop names", names.join(", "));
+        }
         if let Some(p) = &args.out {
             println!("{:<28} {}", "mesh written to", p.display());
         }

@@ -5,8 +5,9 @@
 //! `rect:80,50`, `annulus:45,12`, `polygon:0,0;30,0;30,20;0,20`.
 
 use crate::error::CliError;
-use agarium_core::geometry::{read_outline, Cut, PlateSpec, Shape};
+use agarium_core::geometry::{Cut, PlateSpec, Shape};
 use agarium_core::mesh::{MeshOptions, Spot};
+use agarium_run::{PlateSource, ResolvedPlate};
 use std::path::PathBuf;
 
 /// Plate options.
@@ -16,11 +17,46 @@ pub struct PlateArgs {
     /// (append @X,Y to move the centre of a circle, ellipse, rectangle or annulus).
     // Not required by the parser: `run` may take the plate from a run file, and `spec()`
     // says what is missing.
-    #[arg(long, value_name = "SHAPE", conflicts_with = "outline")]
+    #[arg(long, value_name = "SHAPE", conflicts_with_all = ["outline", "photo"])]
     pub plate: Option<String>,
-    /// Outline file: lines of `x y`, loops separated by blank lines (first outer, then holes).
-    #[arg(long, value_name = "FILE")]
+    /// Outline file: an SVG drawing (.svg: closed paths, the largest is the plate), GeoJSON
+    /// (.geojson/.json: one polygon, first ring the plate) or lines of `x y` (loops separated by
+    /// blank lines, first outer, then holes).
+    #[arg(long, value_name = "FILE", conflicts_with = "photo")]
     pub outline: Option<PathBuf>,
+    /// Photograph of the plate (PNG or JPEG): its outline and wells are traced.
+    #[arg(long, value_name = "FILE")]
+    pub photo: Option<PathBuf>,
+    /// Grey level (0-255) above which a pixel is plate [default: Otsu's automatic threshold].
+    #[arg(long, value_name = "LEVEL", requires = "photo")]
+    pub photo_threshold: Option<u8>,
+    /// Take dark pixels as plate.
+    #[arg(long, requires = "photo")]
+    pub photo_invert: bool,
+    /// The plate is the region under pixel X,Y (column, row from the top) [default: the largest].
+    #[arg(long, value_name = "X,Y", requires = "photo")]
+    pub photo_pixel: Option<String>,
+    /// Length per pixel (in the length unit).
+    #[arg(
+        long,
+        value_name = "L",
+        requires = "photo",
+        conflicts_with = "photo_width"
+    )]
+    pub photo_scale: Option<f64>,
+    /// Real width of the plate (its extent along x), instead of --photo-scale.
+    #[arg(long, value_name = "W", requires = "photo")]
+    pub photo_width: Option<f64>,
+    /// Wells and specks smaller than this many pixels are dropped [default: 16].
+    #[arg(long, value_name = "PX", requires = "photo")]
+    pub photo_speck: Option<f64>,
+    /// Simplification tolerance in pixels (Douglas-Peucker) [default: 0.7].
+    #[arg(long, value_name = "PX", requires = "photo")]
+    pub photo_tolerance: Option<f64>,
+    /// Where to write the photograph with the traced loops drawn on it
+    /// [default: traced-<photo name>.png in the current directory].
+    #[arg(long, value_name = "FILE", requires = "photo")]
+    pub photo_overlay: Option<PathBuf>,
     /// A hole in the plate (well, obstacle), same syntax as --plate; repeatable.
     #[arg(long, value_name = "SHAPE")]
     pub hole: Vec<String>,
@@ -31,7 +67,8 @@ pub struct PlateArgs {
     /// counter-clockwise); repeatable. Applied after every --trim.
     #[arg(long, value_name = "X,Y,FROM,TO", allow_hyphen_values = true)]
     pub wedge: Vec<String>,
-    /// Name of the length unit of all coordinates and sizes (for reports only).
+    /// Name of the length unit of all coordinates and sizes (for reports; an SVG drawn in mm,
+    /// cm, in, pt or pc is converted to it, which must then be mm, cm, m, um or in).
     #[arg(long, value_name = "NAME", default_value = "mm")]
     pub unit: String,
 }
@@ -174,20 +211,44 @@ pub fn parse_shape(flag: &str, text: &str) -> Result<Shape, CliError> {
 }
 
 impl PlateArgs {
-    /// The plate description these options give.
-    pub fn spec(&self) -> Result<PlateSpec, CliError> {
-        let (outer, mut holes) = match (&self.plate, &self.outline) {
-            (Some(text), None) => (parse_shape("--plate", text)?, Vec::new()),
-            (None, Some(path)) => read_outline(path).map_err(CliError::input)?,
-            _ => {
-                return Err(CliError::input(
-                    "give the plate with either --plate or --outline",
-                ))
+    /// Whether these options name an outer outline (a shape, an outline file or a photograph).
+    pub fn names_a_plate(&self) -> bool {
+        self.plate.is_some() || self.outline.is_some() || self.photo.is_some()
+    }
+
+    /// The plate source these options give: the same value a run file's `[plate]` table reads.
+    pub fn source(&self) -> Result<PlateSource, CliError> {
+        let photo_pixel = match &self.photo_pixel {
+            None => None,
+            Some(t) => {
+                let v: Vec<&str> = t.split(',').collect();
+                match (
+                    v.first().map(|s| s.trim().parse::<u32>()),
+                    v.get(1).map(|s| s.trim().parse::<u32>()),
+                ) {
+                    (Some(Ok(x)), Some(Ok(y))) if v.len() == 2 => Some([x, y]),
+                    _ => {
+                        return Err(CliError::input(format!(
+                            "--photo-pixel '{t}': expected two whole numbers X,Y"
+                        )))
+                    }
+                }
             }
         };
-        for h in &self.hole {
-            holes.push(parse_shape("--hole", h)?);
+        let outer = match &self.plate {
+            Some(text) => Some(parse_shape("--plate", text)?),
+            None => None,
+        };
+        if !self.names_a_plate() {
+            return Err(CliError::input(
+                "give the plate with --plate, --outline or --photo",
+            ));
         }
+        let holes = self
+            .hole
+            .iter()
+            .map(|h| parse_shape("--hole", h))
+            .collect::<Result<Vec<_>, _>>()?;
         let mut cuts = Vec::new();
         for t in &self.trim {
             let v = numbers(&format!("--trim '{t}'"), t, ',').map_err(CliError::input)?;
@@ -214,7 +275,32 @@ impl PlateArgs {
                 to_deg: v[3],
             });
         }
-        Ok(PlateSpec { outer, holes, cuts })
+        Ok(PlateSource {
+            outer,
+            outline: self.outline.clone(),
+            photo: self.photo.clone(),
+            photo_threshold: self.photo_threshold,
+            photo_invert: self.photo_invert,
+            photo_pixel,
+            photo_scale: self.photo_scale,
+            photo_width: self.photo_width,
+            photo_speck: self.photo_speck,
+            photo_tolerance: self.photo_tolerance,
+            photo_overlay: self.photo_overlay.clone(),
+            unit: Some(self.unit.clone()),
+            holes,
+            cuts,
+        })
+    }
+
+    /// The plate these options give, with the names of its loops.
+    pub fn resolve(&self) -> Result<ResolvedPlate, CliError> {
+        Ok(self.source()?.resolve()?)
+    }
+
+    /// The plate description these options give.
+    pub fn spec(&self) -> Result<PlateSpec, CliError> {
+        Ok(self.resolve()?.spec)
     }
 }
 

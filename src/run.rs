@@ -343,9 +343,10 @@ pub fn spec_with_end(
         .map_err(|e| CliError::input(format!("{model_file}: {e}")))?;
     // The plate and its mesh come from the command line when it names a plate, otherwise
     // from the run file; --size/--max-area and --spot given here refine a file's [mesh].
-    let cli_plate = args.plate.plate.is_some() || args.plate.outline.is_some();
+    let cli_plate = args.plate.names_a_plate();
     let (plate, mesh) = match (&file.plate, cli_plate) {
-        (Some(spec), false) => {
+        (Some(source), false) => {
+            let spec = &source.resolve()?.spec;
             let mut options = match &file.mesh {
                 Some(m) => m.clone(),
                 None => args.meshing.options(spec)?,

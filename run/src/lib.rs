@@ -11,6 +11,8 @@
 //! - `spec.rs`: the specification and the output schedule.
 //! - `session.rs`: start, resume, the step loop and the outcome.
 //! - `run_file.rs`: TOML run files (every `run` setting in one file).
+//! - `plate_source.rs`: where a plate comes from (shape, outline file, photograph), for the
+//!   command line and the run file alike.
 //! - `initial.rs`: initial-condition overrides and inoculation spots.
 //! - `manifest.rs`: `run.json`, what was run and how it ended.
 //! - `outputs.rs`: states, pictures, plots and the summary table.
@@ -25,6 +27,7 @@ mod error;
 mod initial;
 mod manifest;
 mod outputs;
+mod plate_source;
 mod run_file;
 mod session;
 mod spec;
@@ -37,6 +40,7 @@ pub use initial::{InitialOverrides, Inoculum, SpeciesInitial};
 pub use manifest::{
     now_unix, sha256, Manifest, MeshFigures, CHECKPOINT, DEFAULT_PICTURE_WIDTH, MANIFEST,
 };
+pub use plate_source::{PlateSource, ResolvedPlate};
 pub use run_file::RunFile;
 pub use session::{mesh_of, rayon_threads, Ended, Finished, Observer, Run, Silent, Started};
 pub use spec::{output_count, positive, RunSpec, MAX_OUTPUTS};

@@ -16,7 +16,7 @@
 //! chi_0 = 0.6
 //!
 //! [plate]
-//! outer = { shape = "circle", radius = 20.0 }
+//! outer = { shape = "circle", radius = 20.0 }   # or outline = "dish.svg", or photo = "dish.png"
 //! cuts = [{ cut = "half_plane", normal = [1.0, 0.0], offset = 15.0 }]
 //!
 //! [mesh]
@@ -40,7 +40,6 @@
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
-use agarium_core::geometry::PlateSpec;
 use agarium_core::mesh::MeshOptions;
 use agarium_core::time::StepperParams;
 use agarium_scripting::SourcePos;
@@ -49,6 +48,7 @@ use toml::Spanned;
 
 use crate::error::RunError;
 use crate::initial::{InitialOverrides, Inoculum};
+use crate::plate_source::PlateSource;
 
 /// The contents of a run file; every key is optional.
 #[derive(Debug, Default, Deserialize)]
@@ -65,8 +65,9 @@ pub struct RunFile {
     /// Parameter overrides.
     #[serde(default)]
     pub set: BTreeMap<String, f64>,
-    /// The plate.
-    pub plate: Option<PlateSpec>,
+    /// The plate: a shape (`outer`), an outline file (`outline`) or a photograph (`photo` and
+    /// its `photo_*` settings), with holes and cuts.
+    pub plate: Option<PlateSource>,
     /// Meshing options.
     pub mesh: Option<MeshOptions>,
     /// Solver settings.
@@ -172,6 +173,9 @@ impl RunFile {
         }
         resolve(&mut file.model);
         resolve(&mut file.out);
+        if let Some(plate) = file.plate.as_mut() {
+            plate.resolve_paths(base);
+        }
         if file.mesh.is_some() && file.plate.is_none() {
             return Err(RunError::input(format!(
                 "{}: a [mesh] table needs a [plate] table",

@@ -3,14 +3,24 @@
 
 mod cut;
 mod discretise;
+mod geojson_outline;
+mod image_trace;
 mod outline_file;
+mod outline_source;
 mod shape;
+mod svg_outline;
 mod validate;
 
 pub use cut::Cut;
 pub use discretise::{shape_rings, subdivide_polygon, Ring, TooManyNodes};
+pub use geojson_outline::{parse_geojson, read_geojson};
+pub use image_trace::{
+    otsu, trace_file, trace_grey, write_overlay, Scale, TraceError, TraceOptions, Traced,
+};
 pub use outline_file::{parse_outline, read_outline};
+pub use outline_source::{read_outline_file, NamedLoop, Outline, OutlineFormat};
 pub use shape::{dist, polyline_length, ramanujan_perimeter, signed_area, Point, Shape};
+pub use svg_outline::{millimetres_per, parse_svg, read_svg, DEFAULT_TOLERANCE as SVG_TOLERANCE};
 pub use validate::{check_plate, point_in_ring, LoopRole};
 
 use serde::{Deserialize, Serialize};
@@ -106,6 +116,14 @@ pub enum GeometryError {
         /// The file.
         path: PathBuf,
         /// The system's reason.
+        reason: String,
+    },
+    /// An outline file (SVG, GeoJSON) holds no usable outline.
+    #[error("{path}: {reason}", path = path.display())]
+    OutlineFormat {
+        /// The file.
+        path: PathBuf,
+        /// What is wrong.
         reason: String,
     },
     /// An outline file has a malformed line.
