@@ -85,11 +85,17 @@ pub struct MeshingArgs {
     )]
     pub size: Option<f64>,
     /// Largest triangle area instead of an edge length.
-    #[arg(long, value_name = "A", allow_hyphen_values = true)]
+    #[arg(
+        long = "largest-triangle",
+        alias = "max-area",
+        value_name = "A",
+        allow_hyphen_values = true
+    )]
     pub max_area: Option<f64>,
     /// Smallest triangle angle in degrees (at most 34).
     #[arg(
-        long,
+        long = "smallest-angle",
+        alias = "min-angle",
         value_name = "DEG",
         default_value_t = 30.0,
         allow_hyphen_values = true
@@ -324,15 +330,37 @@ fn extent(shape: &Shape) -> f64 {
     }
 }
 
+/// The earlier spellings of the mesh options, still accepted for a release, and their names
+/// now.
+const OLD_MESH_NAMES: [(&str, &str); 2] = [
+    ("--max-area", "--largest-triangle"),
+    ("--min-angle", "--smallest-angle"),
+];
+
+/// Prints a warning on standard error for each earlier mesh option spelling among `args`.
+fn warn_old_mesh_names(args: impl Iterator<Item = std::ffi::OsString>) {
+    for arg in args {
+        let Some(arg) = arg.to_str() else { continue };
+        for (old, new) in OLD_MESH_NAMES {
+            if arg == old || arg.starts_with(&format!("{old}=")) {
+                eprintln!(
+                    "warning: {old} is now called {new}; the old name goes in a later release"
+                );
+            }
+        }
+    }
+}
+
 impl MeshingArgs {
     /// The meshing options, with defaults that depend on the plate.
     pub fn options(&self, spec: &PlateSpec) -> Result<MeshOptions, CliError> {
+        warn_old_mesh_names(std::env::args_os());
         let size = match (self.size, self.max_area) {
             (Some(h), _) => h,
             (None, Some(a)) => {
                 if !(a.is_finite() && a > 0.0) {
                     return Err(CliError::input(format!(
-                        "--max-area must be a positive number, got {a}"
+                        "--largest-triangle must be a positive number, got {a}"
                     )));
                 }
                 MeshOptions::size_for_max_area(a)

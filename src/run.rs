@@ -342,7 +342,7 @@ pub fn spec_with_end(
     let model_text = std::fs::read_to_string(&model_path)
         .map_err(|e| CliError::input(format!("{model_file}: {e}")))?;
     // The plate and its mesh come from the command line when it names a plate, otherwise
-    // from the run file; --size/--max-area and --spot given here refine a file's [mesh].
+    // from the run file; --size/--largest-triangle and --spot given here refine a file's [mesh].
     let cli_plate = args.plate.names_a_plate();
     let (plate, mesh) = match (&file.plate, cli_plate) {
         (Some(source), false) => {

@@ -272,11 +272,11 @@ fn bad_numbers_are_refused() {
         "--size must be a positive number",
     );
     fails(
-        &["--plate", "circle:10", "--max-area", "-1"],
-        "--max-area must be a positive number",
+        &["--plate", "circle:10", "--largest-triangle", "-1"],
+        "--largest-triangle must be a positive number",
     );
     fails(
-        &["--plate", "circle:10", "--min-angle", "40"],
+        &["--plate", "circle:10", "--smallest-angle", "40"],
         "minimum angle must be above 0 and at most 34",
     );
     fails(
@@ -366,4 +366,51 @@ fn bad_output_names_are_refused_before_work() {
     );
     assert_eq!(out.status.code(), Some(1), "{}", stderr(&out));
     assert!(stderr(&out).contains("afile"));
+}
+
+/// The mesh options have our own names; the earlier spellings still work for a release and
+/// say what they are called now.
+#[test]
+fn earlier_mesh_option_names_work_with_a_warning() {
+    let dir = tempfile::tempdir().unwrap();
+    let new = agarium(
+        &[
+            "mesh",
+            "--plate",
+            "circle:5",
+            "--largest-triangle",
+            "0.5",
+            "--smallest-angle",
+            "28",
+            "--json",
+        ],
+        dir.path(),
+    );
+    assert!(!stderr(&new).contains("warning"), "{}", stderr(&new));
+    let old = agarium(
+        &[
+            "mesh",
+            "--plate",
+            "circle:5",
+            "--max-area",
+            "0.5",
+            "--min-angle",
+            "28",
+            "--json",
+        ],
+        dir.path(),
+    );
+    let text = stderr(&old);
+    assert!(
+        text.contains("--max-area is now called --largest-triangle"),
+        "{text}"
+    );
+    assert!(
+        text.contains("--min-angle is now called --smallest-angle"),
+        "{text}"
+    );
+    let (a, b) = (json_report(&new), json_report(&old));
+    assert!(a["nodes"].as_u64().unwrap() > 0);
+    assert_eq!(a["nodes"], b["nodes"]);
+    assert!(b["min_angle_deg"].as_f64().unwrap() >= 28.0 - 1e-9);
 }

@@ -200,15 +200,15 @@ fn non_finite_numbers_in_options_are_refused() {
             "--size must be a positive number",
         ),
         (
-            vec!["--plate", "circle:10", "--max-area", "inf"],
-            "--max-area must be a positive number",
+            vec!["--plate", "circle:10", "--largest-triangle", "inf"],
+            "--largest-triangle must be a positive number",
         ),
         (
-            vec!["--plate", "circle:10", "--min-angle", "NaN"],
+            vec!["--plate", "circle:10", "--smallest-angle", "NaN"],
             "minimum angle must be above 0",
         ),
         (
-            vec!["--plate", "circle:10", "--min-angle", "0"],
+            vec!["--plate", "circle:10", "--smallest-angle", "0"],
             "minimum angle must be above 0",
         ),
         (
@@ -248,7 +248,7 @@ fn non_finite_numbers_in_options_are_refused() {
 fn min_angle_extremes_mesh_and_keep_their_bound() {
     for deg in [34.0, 0.5] {
         let d = deg.to_string();
-        let (run, r) = mesh_json(&["--plate", "circle:10", "--min-angle", &d]);
+        let (run, r) = mesh_json(&["--plate", "circle:10", "--smallest-angle", &d]);
         assert!(r["min_angle_deg"].as_f64().unwrap() >= deg - 1e-9, "{deg}");
         assert_eq!(r["negative_edge_weights"], 0);
         assert!(r["area_relative_error"].as_f64().unwrap().abs() < 1e-3);
