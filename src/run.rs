@@ -149,6 +149,7 @@ pub enum SchemeArg {
     /// Variable-step BDF2 (second order).
     Bdf2,
     /// Backward Euler (first order).
+    #[value(alias = "backward-euler")]
     Euler,
     /// Variable-step, variable-order BDF (orders 1 to --order-limit, default 5).
     Bdf,

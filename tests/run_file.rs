@@ -132,3 +132,49 @@ fn picture_scales_come_from_the_run_file() {
     );
     assert!(!dir.path().join("bad").exists());
 }
+
+/// One word per scheme on the command line, in run files and in the manifest: `euler`, with
+/// the earlier `backward-euler` still read.
+#[test]
+fn the_scheme_has_one_spelling_everywhere() {
+    for word in ["euler", "backward-euler"] {
+        let dir = tempfile::tempdir().unwrap();
+        let file = run_file(dir.path(), &format!("scheme = \"{word}\"\n"));
+        let o = agarium(
+            &["run", "--run-file", &file, "--end", "0.1", "-q"],
+            dir.path(),
+        );
+        assert!(
+            o.status.success(),
+            "{word}: {}",
+            String::from_utf8_lossy(&o.stderr)
+        );
+        assert_eq!(
+            manifest(&dir.path().join("result"))["solver"]["scheme"],
+            "euler"
+        );
+        let o = agarium(
+            &[
+                "run",
+                "--run-file",
+                &file,
+                "--end",
+                "0.1",
+                "--scheme",
+                word,
+                "-q",
+                "--overwrite",
+            ],
+            dir.path(),
+        );
+        assert!(
+            o.status.success(),
+            "{word}: {}",
+            String::from_utf8_lossy(&o.stderr)
+        );
+        assert_eq!(
+            manifest(&dir.path().join("result"))["solver"]["scheme"],
+            "euler"
+        );
+    }
+}

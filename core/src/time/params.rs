@@ -12,7 +12,9 @@ pub enum Scheme {
     /// solution leaves the positive cone is redone with backward Euler.
     #[default]
     Bdf2,
-    /// Backward Euler (first order, positivity-preserving for the fitted transport).
+    /// Backward Euler (first order, positivity-preserving for the fitted transport). Written
+    /// `euler`, the command line's word; the earlier `backward-euler` is still read.
+    #[serde(rename = "euler", alias = "backward-euler")]
     BackwardEuler,
     /// Variable-step, variable-order BDF (orders 1 to `max_order`, at most 5) on the actual
     /// past times, started with backward Euler; the order is chosen after each step from error
