@@ -146,6 +146,8 @@ fn outline_file_with_a_hole() {
 fn fails(args: &[&str], expected: &str) {
     let dir = tempfile::tempdir().unwrap();
     write(dir.path(), "bowtie.txt", "0 0\n10 0\n10 10\n5 -5\n0 10\n");
+    // A bow tie whose two lobes cancel: zero signed area.
+    write(dir.path(), "balanced.txt", "0 0\n10 0\n0 10\n10 10\n");
     write(dir.path(), "two.txt", "0 0\n10 0\n");
     write(
         dir.path(),
@@ -183,6 +185,10 @@ fn fails(args: &[&str], expected: &str) {
 
 #[test]
 fn bad_geometry_is_refused_with_where() {
+    fails(
+        &["--outline", "balanced.txt"],
+        "crosses itself near (5.000000, 5.000000)",
+    );
     fails(
         &["--outline", "bowtie.txt"],
         "the outer outline intersects itself near",

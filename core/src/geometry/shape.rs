@@ -166,6 +166,13 @@ impl Shape {
                     ));
                 }
                 if signed_area(&distinct).abs() == 0.0 {
+                    // A bow tie's two lobes cancel: say where its edges cross.
+                    if let Some(at) = super::validate::self_crossing(&distinct) {
+                        return Err(format!(
+                            "{role}: the polygon crosses itself near ({:.6}, {:.6})",
+                            at[0], at[1]
+                        ));
+                    }
                     return Err(format!("{role}: the polygon encloses no area"));
                 }
                 Ok(())

@@ -80,6 +80,34 @@ struct Seg {
     b: Point,
 }
 
+/// Where segments s and t meet: their intersection point, or for collinear overlapping
+/// segments the middle of s's part inside t's span.
+fn meeting_point(s: &Seg, t: &Seg) -> Point {
+    let (r, q) = (
+        [s.b[0] - s.a[0], s.b[1] - s.a[1]],
+        [t.b[0] - t.a[0], t.b[1] - t.a[1]],
+    );
+    let denom = r[0] * q[1] - r[1] * q[0];
+    if denom != 0.0 {
+        let w = [t.a[0] - s.a[0], t.a[1] - s.a[1]];
+        let k = ((w[0] * q[1] - w[1] * q[0]) / denom).clamp(0.0, 1.0);
+        return [s.a[0] + k * r[0], s.a[1] + k * r[1]];
+    }
+    // Collinear: project t's ends onto s and take the middle of the common part.
+    let len2 = (r[0] * r[0] + r[1] * r[1]).max(f64::MIN_POSITIVE);
+    let proj = |p: Point| ((p[0] - s.a[0]) * r[0] + (p[1] - s.a[1]) * r[1]) / len2;
+    let (u, v) = (proj(t.a), proj(t.b));
+    let lo = u.min(v).max(0.0);
+    let hi = u.max(v).min(1.0);
+    let k = 0.5 * (lo + hi.max(lo));
+    [s.a[0] + k * r[0], s.a[1] + k * r[1]]
+}
+
+/// Where a single closed loop crosses itself, if it does.
+pub(crate) fn self_crossing(ring: &Ring) -> Option<Point> {
+    first_crossing(&[ring]).map(|(_, _, at)| at)
+}
+
 /// Finds the first pair of segments that meet but should not (segments of one loop may meet
 /// only their neighbours, at the shared corner). Sweep over x so typical outlines cost
 /// O(n log n) rather than O(n²).
@@ -124,8 +152,7 @@ fn first_crossing(rings: &[&Ring]) -> Option<(usize, usize, Point)> {
                 }
             }
             if segments_meet(s.a, s.b, t.a, t.b) {
-                let at = [(s.a[0] + s.b[0]) * 0.5, (s.a[1] + s.b[1]) * 0.5];
-                return Some((s.role_index, t.role_index, at));
+                return Some((s.role_index, t.role_index, meeting_point(s, t)));
             }
         }
     }
@@ -189,11 +216,13 @@ mod tests {
 
     #[test]
     fn bow_tie_is_self_intersecting() {
+        // The diagonals of the unit square cross at (1/2, 1/2) (exact).
         let bow = vec![[0.0, 0.0], [1.0, 1.0], [1.0, 0.0], [0.0, 1.0]];
-        assert!(matches!(
-            check_plate(&bow, &[]),
-            Err(GeometryError::SelfIntersection { .. })
-        ));
+        match check_plate(&bow, &[]) {
+            Err(GeometryError::SelfIntersection { at, .. }) => assert_eq!(at, [0.5, 0.5]),
+            other => panic!("{other:?}"),
+        }
+        assert_eq!(self_crossing(&bow), Some([0.5, 0.5]));
     }
 
     #[test]
