@@ -178,7 +178,7 @@ fn fails(args: &[&str], expected: &str) {
     assert!(!dir.path().join("new.png").exists());
     assert_eq!(
         std::fs::read_dir(dir.path()).unwrap().count(),
-        4,
+        5,
         "stray files after {args:?}"
     );
 }
