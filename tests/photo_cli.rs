@@ -1,19 +1,22 @@
 //! End-to-end tests of plates traced from a photograph: a synthetic picture of a plate with two
 //! wells is meshed, and bad pictures exit with 2 and a message.
 
-use std::path::Path;
-use std::process::{Command, Output};
+mod common;
 
-fn agarium(args: &[&str], dir: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_agarium"))
-        .args(args)
-        .current_dir(dir)
-        .output()
-        .expect("run agarium")
-}
+use std::path::Path;
+use std::process::Output;
+
+use common::agarium;
 
 fn stderr(o: &Output) -> String {
     String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+/// `agarium ARGS` in `dir` exits 2 with `expected` in its message.
+fn refused(dir: &Path, args: &[&str], expected: &str) {
+    let o = agarium(args, dir);
+    assert_eq!(o.status.code(), Some(2), "{args:?}: {}", stderr(&o));
+    assert!(stderr(&o).contains(expected), "{args:?}: {}", stderr(&o));
 }
 
 /// A grey PNG of a bright disc (radius `r` pixels, centred) with two dark wells.
@@ -74,18 +77,14 @@ fn photo_of_a_plate_with_two_wells_meshes_with_three_loops() {
 fn bad_pictures_exit_2_with_a_message() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("junk.png"), "not a picture").unwrap();
-    let o = agarium(
-        &["mesh", "--photo", "junk.png", "--photo-scale", "0.1"],
+    refused(
         dir.path(),
-    );
-    assert_eq!(o.status.code(), Some(2));
-    assert!(
-        stderr(&o).contains("junk.png: cannot read picture"),
-        "{}",
-        stderr(&o)
+        &["mesh", "--photo", "junk.png", "--photo-scale", "0.1"],
+        "junk.png: cannot read picture",
     );
     plate_png(&dir.path().join("plate.png"), 100, 40.0);
-    let o = agarium(
+    refused(
+        dir.path(),
         &[
             "mesh",
             "--photo",
@@ -95,15 +94,10 @@ fn bad_pictures_exit_2_with_a_message() {
             "--photo-threshold",
             "250",
         ],
+        "leaves no plate pixels",
+    );
+    refused(
         dir.path(),
-    );
-    assert_eq!(o.status.code(), Some(2));
-    assert!(
-        stderr(&o).contains("leaves no plate pixels"),
-        "{}",
-        stderr(&o)
-    );
-    let o = agarium(
         &[
             "mesh",
             "--photo",
@@ -112,13 +106,7 @@ fn bad_pictures_exit_2_with_a_message() {
             "0.1",
             "--photo-invert",
         ],
-        dir.path(),
-    );
-    assert_eq!(o.status.code(), Some(2));
-    assert!(
-        stderr(&o).contains("touches the picture's border"),
-        "{}",
-        stderr(&o)
+        "touches the picture's border",
     );
     // No closed region: a uniformly bright picture is all plate, up to the border.
     let file = std::fs::File::create(dir.path().join("blank.png")).unwrap();
@@ -129,15 +117,10 @@ fn bad_pictures_exit_2_with_a_message() {
         .unwrap()
         .write_image_data(&[200u8; 900])
         .unwrap();
-    let o = agarium(
-        &["mesh", "--photo", "blank.png", "--photo-scale", "0.1"],
+    refused(
         dir.path(),
-    );
-    assert_eq!(o.status.code(), Some(2));
-    assert!(
-        stderr(&o).contains("blank.png: the plate region touches the picture's border"),
-        "{}",
-        stderr(&o)
+        &["mesh", "--photo", "blank.png", "--photo-scale", "0.1"],
+        "blank.png: the plate region touches the picture's border",
     );
     let o = agarium(&["mesh", "--photo", "plate.png"], dir.path());
     assert_eq!(o.status.code(), Some(2));
