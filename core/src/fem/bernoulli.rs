@@ -18,11 +18,13 @@ fn positive(x: f64) -> (f64, f64) {
         )
     } else {
         let em1 = x.exp_m1();
-        let b = x / em1;
-        // B' = B (1/x − 1/(1 − e^{−x})) with 1 − e^{−x} = (eˣ − 1)/eˣ, so one exponential
-        // serves both; finite for every x > 0 (B → 0 as x → ∞; eˣ − 1 = ∞ gives B = 0).
+        let inv = 1.0 / em1;
+        let b = x * inv;
+        // B' = B (1/x − eˣ/(eˣ − 1)) = (1 − B eˣ)/(eˣ − 1): one exponential and one division
+        // serve both (this runs once per edge and step); finite for every x > 0 (B → 0 as
+        // x → ∞; eˣ − 1 = ∞ gives B = 0).
         let d = if em1.is_finite() {
-            b * (1.0 / x - (1.0 + em1) / em1)
+            inv * (1.0 - b * (1.0 + em1))
         } else {
             0.0
         };
