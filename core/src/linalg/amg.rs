@@ -19,7 +19,9 @@
 //! is stored as its own CSR matrix (a contiguous row-by-row pass).
 
 use super::direct::DirectLu;
-use super::ops::{for_rows, index, Csr};
+use rayon::prelude::*;
+
+use super::ops::{for_rows, index, Csr, PAR_WORK};
 use super::precond::Apply;
 use super::LinalgError;
 
@@ -262,32 +264,99 @@ fn rap_row(a: &Csr, p: &Csr, r: &Csr, big_i: usize, mut f: impl FnMut(usize, f64
 
 /// The Galerkin product R A P, pattern and values in one pass (rows sorted). Each entry is
 /// summed as [`galerkin_values`] sums it (both through [`rap_row`]), so a later refresh on
-/// the same values reproduces it bit for bit. `acc` is a dense scratch of at least
-/// `p.ncols` values.
+/// the same values reproduces it bit for bit. Coarse rows are independent: above
+/// [`PAR_WORK`] entries of R they are formed in chunks on the rayon pool, each row by one
+/// thread in the same order, so the product does not depend on the thread count. `acc`
+/// is a dense scratch of at least `p.ncols` values.
 fn galerkin_product(a: &Csr, p: &Csr, r: &Csr, mark: &mut [usize], acc: &mut [f64]) -> Csr {
+    galerkin_product_split(a, p, r, mark, acc, r.col.len() >= PAR_WORK)
+}
+
+/// [`galerkin_product`], in parallel chunks or not as `parallel` says.
+fn galerkin_product_split(
+    a: &Csr,
+    p: &Csr,
+    r: &Csr,
+    mark: &mut [usize],
+    acc: &mut [f64],
+    parallel: bool,
+) -> Csr {
     let nc = p.ncols;
     let mut ac = Csr::empty();
     ac.n = nc;
     ac.ncols = nc;
     ac.ptr.reserve(nc + 1);
     ac.ptr.push(0);
-    for big_i in 0..nc {
-        let start = ac.col.len();
+    if !parallel {
+        galerkin_rows(
+            a,
+            p,
+            r,
+            0..nc,
+            mark,
+            acc,
+            &mut ac.ptr,
+            &mut ac.col,
+            &mut ac.val,
+        );
+        mark.fill(NONE);
+        return ac;
+    }
+    let starts: Vec<usize> = (0..nc).step_by(GALERKIN_CHUNK).collect();
+    let parts: Vec<(Vec<usize>, Vec<u32>, Vec<f64>)> = starts
+        .par_iter()
+        .map_init(
+            || (vec![NONE; nc], vec![0.0; nc]),
+            |(mark, acc), &start| {
+                let rows = start..(start + GALERKIN_CHUNK).min(nc);
+                let (mut ends, mut col, mut val) = (Vec::new(), Vec::new(), Vec::new());
+                ends.push(0);
+                galerkin_rows(a, p, r, rows, mark, acc, &mut ends, &mut col, &mut val);
+                (ends, col, val)
+            },
+        )
+        .collect();
+    for (ends, col, val) in parts {
+        let base = ac.col.len();
+        ac.ptr.extend(ends[1..].iter().map(|e| base + e));
+        ac.col.extend_from_slice(&col);
+        ac.val.extend_from_slice(&val);
+    }
+    ac
+}
+
+/// Coarse rows per parallel task of [`galerkin_product`].
+const GALERKIN_CHUNK: usize = 1024;
+
+/// Rows `rows` of R A P appended to `ptr` (row ends, relative to `col`'s start), `col` and
+/// `val`. `mark` must hold no row index of `rows` on entry (it does after `fill(NONE)` or
+/// after earlier rows).
+#[allow(clippy::too_many_arguments)]
+fn galerkin_rows(
+    a: &Csr,
+    p: &Csr,
+    r: &Csr,
+    rows: std::ops::Range<usize>,
+    mark: &mut [usize],
+    acc: &mut [f64],
+    ptr: &mut Vec<usize>,
+    col: &mut Vec<u32>,
+    val: &mut Vec<f64>,
+) {
+    for big_i in rows {
+        let start = col.len();
         rap_row(a, p, r, big_i, |j, t| {
             if mark[j] != big_i {
                 mark[j] = big_i;
-                ac.col.push(index(j));
+                col.push(index(j));
                 acc[j] = 0.0;
             }
             acc[j] += t;
         });
-        ac.col[start..].sort_unstable();
-        ac.val
-            .extend(ac.col[start..].iter().map(|&j| acc[j as usize]));
-        ac.ptr.push(ac.col.len());
+        col[start..].sort_unstable();
+        val.extend(col[start..].iter().map(|&j| acc[j as usize]));
+        ptr.push(col.len());
     }
-    mark.fill(NONE);
-    ac
 }
 
 /// Values of the smoothed prolongator P = (I − ω D⁻¹A) P₀ into `p`'s fixed pattern, with
@@ -703,6 +772,27 @@ mod tests {
         let got: f64 = next.val.iter().sum();
         assert!((got - want).abs() <= 1e-10 * want.abs(), "{got} vs {want}");
         assert!(next.diagonal().iter().all(|d| *d > 0.0));
+    }
+
+    #[test]
+    fn galerkin_product_in_parallel_chunks_equals_the_sequential_one() {
+        // A nonsymmetric transport matrix on a mesh with more coarse rows than one chunk, so
+        // several chunks (and threads, where the pool has them) form the product.
+        let mesh = testmats::disk_mesh(0.012);
+        let a = Csr::from_sprs(&testmats::transport(&mesh, 1e-2, 3.0));
+        let (agg, nc) = aggregate(&a);
+        assert!(nc > 2 * GALERKIN_CHUNK, "{nc} aggregates");
+        let mut p = prolongator_pattern(&a, &agg, nc);
+        let (mut diag, mut size, mut mark) = (vec![0.0; a.n], vec![0.0; nc], vec![NONE; nc]);
+        prolongator_values(&a, &agg, &mut p, &mut diag, &mut size, &mut mark).unwrap();
+        let (r, _) = transpose(&p);
+        let mut acc = vec![0.0; nc];
+        let one = galerkin_product_split(&a, &p, &r, &mut mark, &mut acc, false);
+        let many = galerkin_product_split(&a, &p, &r, &mut mark, &mut acc, true);
+        assert_eq!(one.ptr, many.ptr);
+        assert_eq!(one.col, many.col);
+        let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        assert_eq!(bits(&one.val), bits(&many.val));
     }
 
     #[test]
