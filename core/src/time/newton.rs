@@ -76,6 +76,10 @@ pub(super) struct System {
     rhs: Vec<f64>,
     delta: Vec<f64>,
     product: Vec<f64>,
+    /// Column sums of the matrix per block row: `colsum[r·dim + j]` = Σ over the rows of
+    /// block r of a_ij, computed when the matrix is prepared, so the conservation
+    /// correction after each solve needs two vector passes instead of a matrix pass.
+    colsum: Vec<f64>,
 }
 
 /// Largest per-species block the linearly implicit mode solves directly when the method is
@@ -116,6 +120,7 @@ pub(super) fn system(disc: &Discretisation, species: Vec<usize>, params: &Steppe
         rhs: vec![0.0; dim],
         delta: vec![0.0; dim],
         product: vec![0.0; dim],
+        colsum: Vec::new(),
     }
 }
 
@@ -148,6 +153,25 @@ pub(super) struct StepSolve {
 pub(super) struct Buffers {
     g: Vec<f64>,
     trial: Vec<f64>,
+}
+
+/// Fills `sys.colsum` from the system's matrix (see [`System::colsum`]).
+fn column_sums(sys: &mut System, n: usize) {
+    let blocks = sys.species.len();
+    let dim = blocks * n;
+    sys.colsum.clear();
+    sys.colsum.resize(blocks * dim, 0.0);
+    let a = &sys.matrix;
+    let (ptr, idx, vals) = (a.indptr(), a.indices(), a.data());
+    for i in 0..dim {
+        let cs = &mut sys.colsum[(i / n) * dim..(i / n + 1) * dim];
+        for (&j, &v) in idx[ptr.outer_inds_sz(i)]
+            .iter()
+            .zip(&vals[ptr.outer_inds_sz(i)])
+        {
+            cs[j] += v;
+        }
+    }
 }
 
 impl Simulation {
@@ -317,6 +341,7 @@ impl Simulation {
             return Ok(());
         }
         self.stats.jacobians += 1;
+        column_sums(sys, self.n);
         let frozen = sys.solver.method() == Some(Method::Iterative)
             && !sys.rebuild
             && generation == sys.generation
@@ -394,20 +419,23 @@ impl Simulation {
                 sys.product[k] = (u[s * n + i] + sys.delta[k]).max(0.0);
             }
         }
-        let a = &sys.matrix;
-        let (ptr, idx, vals) = (a.indptr(), a.indices(), a.data());
-        // Residual sums ρ_r and weighted block sums C_rs = Σ_rows(r) Σ_cols(s) a_ij w_j.
+        // Residual sums ρ_r = Σ_rows(r) (b − A δ)_i and weighted block sums
+        // C_rs = Σ_rows(r) Σ_cols(s) a_ij w_j, both through the column sums of block row r.
+        let dim = blocks * n;
         let mut rho = vec![0.0; blocks];
         let mut c = vec![0.0; blocks * blocks];
         for r in 0..blocks {
-            for i in r * n..(r + 1) * n {
-                let range = ptr.outer_inds_sz(i);
-                let mut ax = 0.0;
-                for (&j, &v) in idx[range.clone()].iter().zip(&vals[range]) {
-                    ax += v * sys.delta[j];
-                    c[r * blocks + j / n] += v * sys.product[j];
-                }
-                rho[r] += sys.rhs[i] - ax;
+            let cs = &sys.colsum[r * dim..(r + 1) * dim];
+            let b: f64 = sys.rhs[r * n..(r + 1) * n].iter().sum();
+            let ax: f64 = cs.iter().zip(&sys.delta).map(|(a, d)| a * d).sum();
+            rho[r] = b - ax;
+            for q in 0..blocks {
+                let range = q * n..(q + 1) * n;
+                c[r * blocks + q] = cs[range.clone()]
+                    .iter()
+                    .zip(&sys.product[range])
+                    .map(|(a, w)| a * w)
+                    .sum();
             }
         }
         // A species that is zero everywhere gets no correction.
