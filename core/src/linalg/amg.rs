@@ -265,11 +265,11 @@ fn rap_row(a: &Csr, p: &Csr, r: &Csr, big_i: usize, mut f: impl FnMut(usize, f64
 /// The Galerkin product R A P, pattern and values in one pass (rows sorted). Each entry is
 /// summed as [`galerkin_values`] sums it (both through [`rap_row`]), so a later refresh on
 /// the same values reproduces it bit for bit. Coarse rows are independent: above
-/// [`PAR_WORK`] entries of R they are formed in chunks on the rayon pool, each row by one
+/// [`GALERKIN_PAR_WORK`] entries of R they are formed in chunks on the rayon pool, each row by one
 /// thread in the same order, so the product does not depend on the thread count. `acc`
 /// is a dense scratch of at least `p.ncols` values.
 fn galerkin_product(a: &Csr, p: &Csr, r: &Csr, mark: &mut [usize], acc: &mut [f64]) -> Csr {
-    galerkin_product_split(a, p, r, mark, acc, r.col.len() >= PAR_WORK)
+    galerkin_product_split(a, p, r, mark, acc, r.col.len() >= GALERKIN_PAR_WORK)
 }
 
 /// [`galerkin_product`], in parallel chunks or not as `parallel` says.
@@ -327,6 +327,10 @@ fn galerkin_product_split(
 
 /// Coarse rows per parallel task of [`galerkin_product`].
 const GALERKIN_CHUNK: usize = 1024;
+/// Entries of R from which [`galerkin_product`] runs in parallel: each entry of R costs a
+/// row of A times rows of P (tens of products), so far fewer than [`PAR_WORK`] mat-vec
+/// entries pay for the hand-off (the second level of a 1e5-node hierarchy, 7e4 entries).
+const GALERKIN_PAR_WORK: usize = PAR_WORK / 10;
 
 /// Rows `rows` of R A P appended to `ptr` (row ends, relative to `col`'s start), `col` and
 /// `val`. `mark` must hold no row index of `rows` on entry (it does after `fill(NONE)` or
@@ -369,6 +373,21 @@ fn prolongator_values(
     size: &mut [f64],
     mark: &mut [usize],
 ) -> Result<(), LinalgError> {
+    let parallel = a.col.len() >= PAR_WORK;
+    prolongator_values_split(a, agg, p, diag, size, mark, parallel)
+}
+
+/// [`prolongator_values`], over row chunks in parallel or not as `parallel` says.
+#[allow(clippy::too_many_arguments)]
+fn prolongator_values_split(
+    a: &Csr,
+    agg: &[usize],
+    p: &mut Csr,
+    diag: &mut [f64],
+    size: &mut [f64],
+    mark: &mut [usize],
+    parallel: bool,
+) -> Result<(), LinalgError> {
     for (i, d) in diag.iter_mut().enumerate() {
         let (c, v) = a.row(i);
         *d = c.binary_search(&index(i)).map(|k| v[k]).unwrap_or(0.0);
@@ -388,27 +407,54 @@ fn prolongator_values(
     for s in size.iter_mut() {
         *s = 1.0 / s.sqrt();
     }
-    for i in 0..a.n {
-        let (lo, hi) = (p.ptr[i], p.ptr[i + 1]);
-        for q in lo..hi {
-            mark[p.col[q] as usize] = q;
-            p.val[q] = 0.0;
+    let rows = |start: usize, end: usize, vals: &mut [f64], mark: &mut [usize]| {
+        // `vals` holds the entries of rows start..end (from p.ptr[start]).
+        let off = p.ptr[start];
+        for i in start..end {
+            let (lo, hi) = (p.ptr[i], p.ptr[i + 1]);
+            for q in lo..hi {
+                mark[p.col[q] as usize] = q - off;
+                vals[q - off] = 0.0;
+            }
+            let (c, v) = a.row(i);
+            for (&k, &aik) in c.iter().zip(v) {
+                let g = agg[k as usize];
+                vals[mark[g]] += aik * size[g];
+            }
+            let scale = omega / diag[i];
+            for q in lo..hi {
+                vals[q - off] = -(vals[q - off] * scale);
+                mark[p.col[q] as usize] = NONE;
+            }
+            let own = lo + p.col[lo..hi].partition_point(|&j| (j as usize) < agg[i]);
+            vals[own - off] += size[agg[i]];
         }
-        let (c, v) = a.row(i);
-        for (&k, &aik) in c.iter().zip(v) {
-            let g = agg[k as usize];
-            p.val[mark[g]] += aik * size[g];
-        }
-        let scale = omega / diag[i];
-        for q in lo..hi {
-            p.val[q] = -(p.val[q] * scale);
-            mark[p.col[q] as usize] = NONE;
-        }
-        let own = p.ptr[i] + p.col[lo..hi].partition_point(|&j| (j as usize) < agg[i]);
-        p.val[own] += size[agg[i]];
+    };
+    if !parallel {
+        rows(0, a.n, &mut p.val, mark);
+        return Ok(());
     }
+    // Rows are independent: chunks of rows (each with its slice of P's values) on the rayon
+    // pool, each row computed by one thread as above, so the values do not depend on the
+    // thread count.
+    let mut chunks: Vec<(usize, usize, &mut [f64])> = Vec::new();
+    let mut rest: &mut [f64] = &mut p.val;
+    for start in (0..a.n).step_by(PROLONG_CHUNK) {
+        let end = (start + PROLONG_CHUNK).min(a.n);
+        let (head, tail) = rest.split_at_mut(p.ptr[end] - p.ptr[start]);
+        chunks.push((start, end, head));
+        rest = tail;
+    }
+    let nc = p.ncols;
+    chunks.par_iter_mut().for_each_init(
+        || vec![NONE; nc],
+        |mark, (start, end, vals)| rows(*start, *end, vals, mark),
+    );
     Ok(())
 }
+
+/// Fine rows per parallel task of [`prolongator_values`].
+const PROLONG_CHUNK: usize = 4096;
 
 /// Values of R A P into `ac`'s fixed pattern.
 fn galerkin_values(a: &Csr, p: &Csr, r: &Csr, ac: &mut Csr, mark: &mut [usize]) {
@@ -793,6 +839,24 @@ mod tests {
         assert_eq!(one.col, many.col);
         let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
         assert_eq!(bits(&one.val), bits(&many.val));
+    }
+
+    #[test]
+    fn prolongator_values_in_parallel_chunks_equal_the_sequential_ones() {
+        let mesh = testmats::disk_mesh(0.012);
+        let a = Csr::from_sprs(&testmats::transport(&mesh, 1e-2, 3.0));
+        assert!(a.n > 2 * PROLONG_CHUNK, "{} rows", a.n);
+        let (agg, nc) = aggregate(&a);
+        let mut one = prolongator_pattern(&a, &agg, nc);
+        let mut many = one.clone();
+        let (mut diag, mut size, mut mark) = (vec![0.0; a.n], vec![0.0; nc], vec![NONE; nc]);
+        prolongator_values_split(&a, &agg, &mut one, &mut diag, &mut size, &mut mark, false)
+            .unwrap();
+        prolongator_values_split(&a, &agg, &mut many, &mut diag, &mut size, &mut mark, true)
+            .unwrap();
+        let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        assert_eq!(bits(&one.val), bits(&many.val));
+        assert!(one.val.iter().any(|v| *v != 0.0));
     }
 
     #[test]
