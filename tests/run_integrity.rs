@@ -162,7 +162,10 @@ fn resume_refused(out: &Path, expected: &str) {
         .into_iter()
         .map(|n| (n.clone(), std::fs::read(out.join(&n)).unwrap()))
         .collect();
-    assert!(before == after, "{expected}: the refused resume changed the folder");
+    assert!(
+        before == after,
+        "{expected}: the refused resume changed the folder"
+    );
 }
 
 fn edit_manifest(out: &Path, edit: impl FnOnce(&mut serde_json::Value)) {
@@ -200,7 +203,10 @@ fn resume_refuses_edited_manifests_and_damaged_or_foreign_checkpoints() {
 
     let out = case("parameters");
     edit_manifest(&out, |m| m["parameters"][0][1] = 7.0.into());
-    resume_refused(&out, "the parameters (overrides, values, initial conditions) differ");
+    resume_refused(
+        &out,
+        "the parameters (overrides, values, initial conditions) differ",
+    );
 
     let out = case("solver");
     edit_manifest(&out, |m| m["solver"]["rtol"] = 0.5.into());
@@ -241,7 +247,10 @@ fn resume_refuses_edited_manifests_and_damaged_or_foreign_checkpoints() {
     let text = std::fs::read_to_string(model()).unwrap();
     std::fs::write(&other_model, format!("// another model\n{text}")).unwrap();
     let mut args = run_args(&other, &["--checkpoint-every", "1"]);
-    let k = args.iter().position(|a| a.ends_with("fisher_kpp.rhai")).unwrap();
+    let k = args
+        .iter()
+        .position(|a| a.ends_with("fisher_kpp.rhai"))
+        .unwrap();
     args[k] = other_model.display().to_string();
     let o = with_fault("exit-after-output-time-checkpoint", &args);
     assert_eq!(o.status.code(), Some(86), "{}", stderr(&o));
@@ -269,12 +278,19 @@ fn resuming_a_finished_run_says_so_and_writes_nothing() {
         .output()
         .unwrap();
     assert_eq!(o.status.code(), Some(0));
-    assert!(stderr(&o).contains("already reached its end time"), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("already reached its end time"),
+        "{}",
+        stderr(&o)
+    );
     let after: Vec<(String, Vec<u8>)> = files(&out)
         .into_iter()
         .map(|n| (n.clone(), std::fs::read(out.join(&n)).unwrap()))
         .collect();
-    assert!(before == after, "resume of a finished run changed the folder");
+    assert!(
+        before == after,
+        "resume of a finished run changed the folder"
+    );
 }
 
 #[test]
@@ -310,8 +326,14 @@ fn a_busy_folder_is_refused_and_a_dead_runs_lock_is_not() {
         .unwrap();
     let err = stderr(&o);
     assert_eq!(o.status.code(), Some(2), "{err}");
-    assert!(err.contains(&folder) && err.contains("another agarium run"), "{err}");
-    assert!(child.try_wait().unwrap().is_none(), "the first run was disturbed");
+    assert!(
+        err.contains(&folder) && err.contains("another agarium run"),
+        "{err}"
+    );
+    assert!(
+        child.try_wait().unwrap().is_none(),
+        "the first run was disturbed"
+    );
 
     // Killed outright: its lock file stays, its lock does not.
     child.kill().unwrap();
@@ -333,10 +355,16 @@ fn a_write_error_names_the_file_and_marks_the_run_failed() {
     let o = with_fault(&format!("fail-write:{file}"), &run_args(&out, &[]));
     let err = stderr(&o);
     assert_eq!(o.status.code(), Some(1), "{err}");
-    assert!(err.contains(&file) && err.contains("No space left"), "{err}");
+    assert!(
+        err.contains(&file) && err.contains("No space left"),
+        "{err}"
+    );
     let m = common::manifest(&out);
     let exit = m["exit"].as_str().unwrap();
-    assert!(exit.starts_with("error: ") && exit.contains(&file), "{exit}");
+    assert!(
+        exit.starts_with("error: ") && exit.contains(&file),
+        "{exit}"
+    );
     assert!(!out.join(&file).exists());
     // The failed run resumes from its last checkpoint once the disk is back.
     let o = resume(&out);
@@ -353,20 +381,30 @@ fn refused_and_nothing_written(args: &[&str], expected: &str) {
     assert_eq!(o.status.code(), Some(2), "{args:?}: {err}");
     assert!(err.contains(expected), "expected `{expected}` in: {err}");
     assert!(!err.contains("panicked"), "{err}");
-    assert_eq!(files(dir.path()), Vec::<String>::new(), "{args:?} wrote files");
+    assert_eq!(
+        files(dir.path()),
+        Vec::<String>::new(),
+        "{args:?} wrote files"
+    );
 }
 
 #[test]
 fn settings_that_would_exhaust_memory_or_time_are_refused_up_front() {
     let m = model();
-    let base = ["run", m.as_str(), "--plate", "circle:4", "--size", "0.5", "-o", "out"];
+    let base = [
+        "run",
+        m.as_str(),
+        "--plate",
+        "circle:4",
+        "--size",
+        "0.5",
+        "-o",
+        "out",
+    ];
     let with = |extra: &[&'static str]| -> Vec<&str> {
         base.iter().copied().chain(extra.iter().copied()).collect()
     };
-    refused_and_nothing_written(
-        &with(&["--end", "1e20", "--every", "1"]),
-        "--every 1 gives",
-    );
+    refused_and_nothing_written(&with(&["--end", "1e20", "--every", "1"]), "--every 1 gives");
     refused_and_nothing_written(
         &with(&["--end", "1", "--every", "1e-10"]),
         "--every 0.0000000001 gives",
@@ -375,10 +413,7 @@ fn settings_that_would_exhaust_memory_or_time_are_refused_up_front() {
         &with(&["--end", "1", "--fixed-step", "--dt", "1e-9"]),
         "take 1000000000 steps, more than the budget of 10000000",
     );
-    refused_and_nothing_written(
-        &with(&["--end", "1", "--dt-max", "1e-8"]),
-        "--max-steps",
-    );
+    refused_and_nothing_written(&with(&["--end", "1", "--dt-max", "1e-8"]), "--max-steps");
     refused_and_nothing_written(
         &with(&["--end", "1", "--max-nodes", "100000000000000"]),
         "--max-nodes 100000000000000: a mesh of that many nodes needs at least",
@@ -432,7 +467,17 @@ fn paths_that_are_not_utf8_are_taken_as_they_are() {
     let name = std::ffi::OsStr::from_bytes(b"out-\xff\xfe");
     let o = bin()
         .current_dir(dir.path())
-        .args(["run", &model(), "--plate", "circle:4", "--size", "0.5", "--end", "0.5", "-q"])
+        .args([
+            "run",
+            &model(),
+            "--plate",
+            "circle:4",
+            "--size",
+            "0.5",
+            "--end",
+            "0.5",
+            "-q",
+        ])
         .arg("-o")
         .arg(name)
         .output()
@@ -446,7 +491,9 @@ fn every_output_path_is_checked_before_any_is_written() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::create_dir(dir.path().join("taken.png")).unwrap();
     std::fs::write(dir.path().join("plain.txt"), "x").unwrap();
-    let mesh = ["mesh", "--plate", "circle:4", "--size", "0.5", "-o", "m.vtu"];
+    let mesh = [
+        "mesh", "--plate", "circle:4", "--size", "0.5", "-o", "m.vtu",
+    ];
     for (png, expected) in [
         ("taken.png", "--png: "),
         ("plain.txt/x.png", "is a file, not a folder"),
@@ -456,10 +503,17 @@ fn every_output_path_is_checked_before_any_is_written() {
         let err = stderr(&o);
         assert_eq!(o.status.code(), Some(2), "{png}: {err}");
         assert!(err.contains(expected) && err.contains(png), "{err}");
-        assert!(!dir.path().join("m.vtu").exists(), "{png}: m.vtu was written");
+        assert!(
+            !dir.path().join("m.vtu").exists(),
+            "{png}: m.vtu was written"
+        );
     }
     // /proc refuses new files even to root.
-    let args: Vec<&str> = mesh.iter().copied().chain(["--png", "/proc/x.png"]).collect();
+    let args: Vec<&str> = mesh
+        .iter()
+        .copied()
+        .chain(["--png", "/proc/x.png"])
+        .collect();
     let o = common::agarium(&args, dir.path());
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
     assert!(stderr(&o).contains("/proc/x.png"));
@@ -481,6 +535,9 @@ fn every_output_path_is_checked_before_any_is_written() {
     );
     let err = stderr(&o);
     assert_eq!(o.status.code(), Some(2), "{err}");
-    assert!(err.contains("output folder (-o)") && err.contains("plain.txt"), "{err}");
+    assert!(
+        err.contains("output folder (-o)") && err.contains("plain.txt"),
+        "{err}"
+    );
     assert_eq!(files(dir.path()), vec!["plain.txt", "taken.png"]);
 }

@@ -38,8 +38,8 @@ pub mod sweep;
 mod text;
 
 pub use error::{ErrorKind, RunError};
-pub use lock::{is_housekeeping, leftovers, FolderLock, LOCK_FILE, TEMPORARY_PREFIX};
 pub use initial::{InitialOverrides, Inoculum, SpeciesInitial};
+pub use lock::{is_housekeeping, leftovers, FolderLock, LOCK_FILE, TEMPORARY_PREFIX};
 pub use manifest::{
     now_unix, sha256, Manifest, MeshFigures, CHECKPOINT, DEFAULT_PICTURE_WIDTH, MANIFEST,
     MANIFEST_FORMAT,

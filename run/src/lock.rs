@@ -35,7 +35,10 @@ impl FolderLock {
             .truncate(false)
             .open(&path)
             .map_err(|e| {
-                RunError::failure(format!("{}: cannot open the folder's lock: {e}", path.display()))
+                RunError::failure(format!(
+                    "{}: cannot open the folder's lock: {e}",
+                    path.display()
+                ))
             })?;
         // Fully qualified: std's inherent `File::try_lock` is newer than the declared MSRV.
         match fs4::FileExt::try_lock(&file) {

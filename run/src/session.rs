@@ -195,7 +195,11 @@ fn fingerprints(m: &Manifest) -> [(&'static str, &'static str, String); 4] {
             "parameters (overrides, values, initial conditions)",
             sha256(&parameters.to_string()),
         ),
-        ("plate", "plate and mesh settings", sha256(&plate.to_string())),
+        (
+            "plate",
+            "plate and mesh settings",
+            sha256(&plate.to_string()),
+        ),
         ("solver", "solver settings", sha256(&solver.to_string())),
     ]
 }
@@ -321,7 +325,6 @@ impl Run {
             problem,
             mesh,
             sim,
-            false,
             Vec::new(),
             lock,
         ))
@@ -416,9 +419,7 @@ impl Run {
         .map_err(|e| RunError::input(format!("{checkpoint_path}: {e}")))?;
         manifest.format = MANIFEST_FORMAT;
         manifest.resumed_unix.push(now_unix());
-        Ok(Self::ready(
-            manifest, dir, problem, mesh, sim, true, notes, lock,
-        ))
+        Ok(Self::ready(manifest, dir, problem, mesh, sim, notes, lock))
     }
 
     /// A run of `manifest` ready to advance in `dir`.
@@ -428,10 +429,11 @@ impl Run {
         problem: Problem,
         mesh: Arc<Mesh>,
         sim: Simulation,
-        resumed: bool,
         notes: Vec<String>,
         lock: FolderLock,
     ) -> Self {
+        // A resume records itself in the manifest before the run is ready.
+        let resumed = !manifest.resumed_unix.is_empty();
         Self {
             stops: stops(manifest.end, manifest.every, &manifest.picture_times),
             manifest,

@@ -65,7 +65,12 @@ pub fn check_folder_writable(dir: &Path) -> Result<(), OutputError> {
     builder(".probe")
         .tempfile_in(existing)
         .map(drop)
-        .map_err(|e| io_err(dir, format!("cannot create files in {}: {e}", existing.display())))
+        .map_err(|e| {
+            io_err(
+                dir,
+                format!("cannot create files in {}: {e}", existing.display()),
+            )
+        })
 }
 
 /// Checks that `path` can be written by [`write_atomically`] before anything is: it is not a
@@ -152,7 +157,9 @@ mod tests {
         // A folder where a file is meant, and a file where a folder is meant.
         let err = check_writable(dir.path()).unwrap_err().to_string();
         assert!(err.contains("it is a folder"), "{err}");
-        let err = check_writable(&file.join("sub/x.png")).unwrap_err().to_string();
+        let err = check_writable(&file.join("sub/x.png"))
+            .unwrap_err()
+            .to_string();
         assert!(err.contains("is a file, not a folder"), "{err}");
         // Missing folders below a writable one are fine (created later), and no probe stays.
         check_writable(&dir.path().join("new/deeper/x.png")).unwrap();

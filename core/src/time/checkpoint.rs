@@ -124,7 +124,8 @@ impl Checkpoint {
             reason: e.to_string(),
         };
         let per_state = self.states.first().map_or(0, Vec::len);
-        let mut bytes = Vec::with_capacity(HEADER + json.len() + self.states.len() * 8 * (per_state + 1) + 4);
+        let mut bytes =
+            Vec::with_capacity(HEADER + json.len() + self.states.len() * 8 * (per_state + 1) + 4);
         bytes.extend_from_slice(MAGIC);
         bytes.extend_from_slice(&VERSION.to_le_bytes());
         bytes.extend_from_slice(&(json.len() as u64).to_le_bytes());
