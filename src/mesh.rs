@@ -62,10 +62,11 @@ pub fn run(args: &MeshArgs) -> Result<(), CliError> {
             args.png_pixels
         )));
     }
-    // Every output is checked before any is written, so one bad path leaves nothing behind.
+    // Every output is checked before any is written, so one bad path leaves nothing behind
+    // (a path that cannot be written is a failure, exit 1, as a failed write is).
     for (flag, path) in [("--out", &args.out), ("--png", &args.png)] {
         if let Some(p) = path {
-            check_writable(p).map_err(|e| CliError::input(format!("{flag}: {e}")))?;
+            check_writable(p).map_err(|e| CliError::failure(format!("{flag}: {e}")))?;
         }
     }
     let resolved = args.plate.resolve()?;

@@ -356,7 +356,7 @@ pub fn spec_with_end(
         .clone()
         .unwrap_or_else(|| PathBuf::from("out").join(&stem));
     agarium_core::output::check_folder_writable(&out_dir)
-        .map_err(|e| CliError::input(format!("output folder (-o): {e}")))?;
+        .map_err(|e| CliError::failure(format!("output folder (-o): {e}")))?;
     let model_file = model_path.display().to_string();
     let model_text = std::fs::read_to_string(&model_path)
         .map_err(|e| CliError::input(format!("{model_file}: {e}")))?;
