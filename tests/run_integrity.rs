@@ -535,7 +535,7 @@ fn every_output_path_is_checked_before_any_is_written() {
         dir.path(),
     );
     let err = stderr(&o);
-    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert_eq!(o.status.code(), Some(1), "{err}");
     assert!(
         err.contains("output folder (-o)") && err.contains("plain.txt"),
         "{err}"
