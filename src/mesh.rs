@@ -3,7 +3,7 @@
 use crate::error::CliError;
 use crate::plate_args::{MeshingArgs, PlateArgs};
 use agarium_core::mesh::{build_mesh, MeshError, QualityReport};
-use agarium_core::output::{write_mesh_png, write_vtu, Field, PngOptions};
+use agarium_core::output::{check_writable, write_mesh_png, write_vtu, Field, PngOptions};
 use std::path::PathBuf;
 
 /// Arguments of `agarium mesh`.
@@ -61,6 +61,13 @@ pub fn run(args: &MeshArgs) -> Result<(), CliError> {
             "--png-pixels must be between 16 and 16384, got {}",
             args.png_pixels
         )));
+    }
+    // Every output is checked before any is written, so one bad path leaves nothing behind
+    // (a path that cannot be written is a failure, exit 1, as a failed write is).
+    for (flag, path) in [("--out", &args.out), ("--png", &args.png)] {
+        if let Some(p) = path {
+            check_writable(p).map_err(|e| CliError::failure(format!("{flag}: {e}")))?;
+        }
     }
     let resolved = args.plate.resolve()?;
     let spec = resolved.spec;

@@ -119,6 +119,39 @@ pub struct MeshingArgs {
 
 pub(crate) use agarium_run::numbers;
 
+/// Memory a mesh node costs at least while meshing and solving (coordinates, triangles,
+/// edges and the triangulation's own structures, a few hundred bytes; the solver's matrices
+/// more): the estimate `--max-nodes` is held against.
+pub const BYTES_PER_NODE: u64 = 1024;
+
+/// The default `--max-nodes`, never refused (a machine too small for it fails later).
+const DEFAULT_MAX_NODES: usize = 2_000_000;
+
+/// The machine's memory in bytes (Linux: `MemTotal` of /proc/meminfo; `None` elsewhere, and
+/// then `--max-nodes` is not checked against it).
+fn machine_memory() -> Option<u64> {
+    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+    let line = text.lines().find(|l| l.starts_with("MemTotal:"))?;
+    let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    kib.checked_mul(1024)
+}
+
+/// A node budget above the default whose mesh could not fit in `memory` bytes is refused.
+pub fn check_node_budget(max_nodes: usize, memory: Option<u64>) -> Result<(), CliError> {
+    let Some(memory) = memory else { return Ok(()) };
+    let need = (max_nodes as u64).saturating_mul(BYTES_PER_NODE);
+    if max_nodes > DEFAULT_MAX_NODES && need > memory {
+        let gib = |b: u64| b as f64 / (1u64 << 30) as f64;
+        return Err(CliError::input(format!(
+            "--max-nodes {max_nodes}: a mesh of that many nodes needs at least {:.1} GiB ({BYTES_PER_NODE} bytes per node), more than this machine's {:.1} GiB of memory; give at most {}",
+            gib(need),
+            gib(memory),
+            memory / BYTES_PER_NODE
+        )));
+    }
+    Ok(())
+}
+
 /// Parses `KIND:NUMBERS[@X,Y]`; `flag` names the option in messages.
 pub fn parse_shape(flag: &str, text: &str) -> Result<Shape, CliError> {
     let what = format!("{flag} '{text}'");
@@ -355,6 +388,7 @@ impl MeshingArgs {
     /// The meshing options, with defaults that depend on the plate.
     pub fn options(&self, spec: &PlateSpec) -> Result<MeshOptions, CliError> {
         warn_old_mesh_names(std::env::args_os());
+        check_node_budget(self.max_nodes, machine_memory())?;
         let size = match (self.size, self.max_area) {
             (Some(h), _) => h,
             (None, Some(a)) => {

@@ -131,6 +131,11 @@ pub struct RunArgs {
     /// last one (the trajectory does not depend on when checkpoints are taken).
     #[arg(long, value_name = "MINUTES")]
     pub checkpoint_minutes: Option<f64>,
+    /// Most time steps the solver settings may imply (fixed steps of --dt, or at least
+    /// END / --dt-max steps); a run beyond it is refused before it starts, since every step
+    /// keeps a row of diagnostics in memory [default: 10000000].
+    #[arg(long, value_name = "N", value_parser = clap::value_parser!(u64).range(1..))]
+    pub max_steps: Option<u64>,
     /// Print nothing but errors.
     #[arg(short, long)]
     pub quiet: bool,
@@ -339,6 +344,19 @@ pub fn spec_with_end(
             model_path.display()
         )));
     }
+    let stem = model_path
+        .file_stem()
+        .and_then(|s| s.to_str())
+        .unwrap_or("run")
+        .to_string();
+    let dir = args.out.clone().or(file.out.clone());
+    // Before anything is written (a photograph's overlay is, while the plate is resolved):
+    // the output folder must be one files can be made in.
+    let out_dir = dir
+        .clone()
+        .unwrap_or_else(|| PathBuf::from("out").join(&stem));
+    agarium_core::output::check_folder_writable(&out_dir)
+        .map_err(|e| CliError::failure(format!("output folder (-o): {e}")))?;
     let model_file = model_path.display().to_string();
     let model_text = std::fs::read_to_string(&model_path)
         .map_err(|e| CliError::input(format!("{model_file}: {e}")))?;
@@ -366,12 +384,6 @@ pub fn spec_with_end(
             (spec, options)
         }
     };
-    let stem = model_path
-        .file_stem()
-        .and_then(|s| s.to_str())
-        .unwrap_or("run")
-        .to_string();
-    let dir = args.out.clone().or(file.out.clone());
     let spec = RunSpec {
         model_file,
         model_text,
@@ -395,7 +407,14 @@ pub fn spec_with_end(
         stem,
         checkpoint_steps,
         checkpoint_minutes,
-        command_line: std::env::args().collect(),
+        // `std::env::args` panics on an argument that is not UTF-8 (a path may be any bytes).
+        command_line: std::env::args_os()
+            .map(|a| a.to_string_lossy().into_owned())
+            .collect(),
+        max_steps: args
+            .max_steps
+            .or(file.max_steps)
+            .unwrap_or(agarium_run::DEFAULT_MAX_STEPS),
     };
     Ok((spec, dir, file))
 }
@@ -536,8 +555,12 @@ fn execute(run: Run, quiet: bool) -> Result<i32, CliError> {
 pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     let (spec, dir, _) = spec_of(args)?;
     let dir = dir.unwrap_or_else(|| PathBuf::from("out").join(&spec.stem));
-    let clear = claim_folder(&dir, &spec.stem, args.overwrite)?;
+    let stem = spec.stem.clone();
+    // Refused early, before meshing; claimed again once the run holds the folder's lock,
+    // which is what settles it when two runs start into one folder together.
+    claim_folder(&dir, &stem, args.overwrite)?;
     let run = Run::start(spec, &dir)?;
+    let clear = claim_folder(&dir, &stem, args.overwrite)?;
     // Only once the new run has been checked (model, plate, mesh, initial data) are the old
     // files removed, so a refused run leaves the folder as it was.
     for f in clear {
@@ -547,9 +570,11 @@ pub fn run(args: &RunArgs) -> Result<i32, CliError> {
     execute(run, args.quiet)
 }
 
-/// Whether a run may write into `dir`: a missing or empty folder is fine; a non-empty one
-/// only with `overwrite`, and then the files a run writes there (of the previous run's stem
-/// and of `stem`) are returned for removal; anything else stays.
+/// Whether a run may write into `dir`: a missing or empty folder is fine (the lock file and
+/// temporary files a killed run left do not count; the latter are returned for removal); a
+/// non-empty one only with `overwrite`, and then the files a run writes there (of the previous
+/// run's stem and of `stem`) are returned for removal too; anything else stays, the lock
+/// file included (another run may be waiting on it).
 fn claim_folder(dir: &Path, stem: &str, overwrite: bool) -> Result<Vec<PathBuf>, CliError> {
     if !dir.exists() {
         return Ok(Vec::new());
@@ -563,9 +588,15 @@ fn claim_folder(dir: &Path, stem: &str, overwrite: bool) -> Result<Vec<PathBuf>,
     let entries: Vec<PathBuf> = std::fs::read_dir(dir)
         .map_err(|e| CliError::input(format!("{}: {e}", dir.display())))?
         .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| {
+            !p.file_name()
+                .and_then(|n| n.to_str())
+                .is_some_and(agarium_run::is_housekeeping)
+        })
         .collect();
+    let leftovers = agarium_run::leftovers(dir);
     if entries.is_empty() {
-        return Ok(Vec::new());
+        return Ok(leftovers);
     }
     let previous = agarium_run::Manifest::read(dir).ok();
     if !overwrite {
@@ -587,19 +618,20 @@ fn claim_folder(dir: &Path, stem: &str, overwrite: bool) -> Result<Vec<PathBuf>,
             stems.push(s.to_string());
         }
     }
-    Ok(entries
+    let mut clear: Vec<PathBuf> = entries
         .into_iter()
         .filter(|p| p.is_file())
         .filter(|p| {
             let name = p.file_name().and_then(|n| n.to_str()).unwrap_or("");
             name == agarium_run::MANIFEST
                 || name == agarium_run::CHECKPOINT
-                || (name.starts_with(".agarium-") && name.ends_with(".part"))
                 || stems
                     .iter()
                     .any(|s| name == format!("{s}.pvd") || name.starts_with(&format!("{s}_")))
         })
-        .collect())
+        .collect();
+    clear.extend(leftovers);
+    Ok(clear)
 }
 
 /// Runs `agarium resume`.

@@ -9,6 +9,7 @@
 
 #![deny(missing_docs)]
 
+pub mod fault;
 pub mod fem;
 pub mod geometry;
 pub mod kernel;

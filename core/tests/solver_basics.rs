@@ -243,4 +243,11 @@ fn resumed_runs_end_bit_for_bit_where_uninterrupted_runs_end() {
     let bytes = std::fs::read(&path).unwrap();
     std::fs::write(&path, &bytes[..bytes.len() - 8]).unwrap();
     assert!(Checkpoint::read(&path).is_err());
+    // One flipped bit in the states is caught by the checksum.
+    let mut flipped = bytes.clone();
+    let k = flipped.len() - 100;
+    flipped[k] ^= 0x10;
+    std::fs::write(&path, &flipped).unwrap();
+    let err = Checkpoint::read(&path).unwrap_err().to_string();
+    assert!(err.contains("checksum mismatch"), "{err}");
 }

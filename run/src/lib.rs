@@ -15,6 +15,7 @@
 //!   command line and the run file alike.
 //! - `initial.rs`: initial-condition overrides and inoculation spots.
 //! - `manifest.rs`: `run.json`, what was run and how it ended.
+//! - `lock.rs`: the output folder's lock and the temporary files a killed run leaves.
 //! - `outputs.rs`: states, pictures, plots and the summary table.
 //! - `stability.rs`: pattern prediction (steady states, dispersion relation, plate modes,
 //!   parameter thresholds) for a specification's model and plate.
@@ -25,6 +26,7 @@
 
 mod error;
 mod initial;
+mod lock;
 mod manifest;
 mod outputs;
 mod plate_source;
@@ -37,11 +39,13 @@ mod text;
 
 pub use error::{ErrorKind, RunError};
 pub use initial::{InitialOverrides, Inoculum, SpeciesInitial};
+pub use lock::{is_housekeeping, leftovers, FolderLock, LOCK_FILE, TEMPORARY_PREFIX};
 pub use manifest::{
     now_unix, sha256, Manifest, MeshFigures, CHECKPOINT, DEFAULT_PICTURE_WIDTH, MANIFEST,
+    MANIFEST_FORMAT,
 };
 pub use plate_source::{PlateSource, ResolvedPlate};
 pub use run_file::RunFile;
 pub use session::{mesh_of, rayon_threads, Ended, Finished, Observer, Run, Silent, Started};
-pub use spec::{output_count, positive, RunSpec, MAX_OUTPUTS};
+pub use spec::{output_count, positive, RunSpec, DEFAULT_MAX_STEPS, MAX_OUTPUTS};
 pub use text::numbers;

@@ -19,6 +19,13 @@ use crate::error::RunError;
 pub const MANIFEST: &str = "run.json";
 /// File name of the checkpoint in the output folder.
 pub const CHECKPOINT: &str = "checkpoint.bin";
+/// Format of the manifest this agarium writes (2: `format`, `outputs_done`, `resumed_unix`
+/// and checkpoints with a checksum and fingerprints; a manifest without `format` is 1).
+pub const MANIFEST_FORMAT: u32 = 2;
+
+fn format_one() -> u32 {
+    1
+}
 
 /// Mesh figures recorded in the manifest.
 #[derive(Clone, Debug, Serialize, Deserialize, PartialEq)]
@@ -37,6 +44,9 @@ pub struct MeshFigures {
 #[derive(Clone, Debug, Serialize, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct Manifest {
+    /// Format of this file ([`MANIFEST_FORMAT`]; 1 when absent).
+    #[serde(default = "format_one")]
+    pub format: u32,
     /// Program and version.
     pub tool: String,
     /// The command line as given.
@@ -103,6 +113,13 @@ pub struct Manifest {
     pub exit: String,
     /// Time of the last checkpoint.
     pub checkpoint_time: Option<f64>,
+    /// Time of the last output time whose files (state, index entry, pictures, plots) are
+    /// all written; a resume from a checkpoint at a later output time writes that time's.
+    #[serde(default)]
+    pub outputs_done: Option<f64>,
+    /// When the run was resumed, seconds since the Unix epoch (one entry per resume).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub resumed_unix: Vec<u64>,
     /// Wall seconds of the run (of the last resume, for a resumed run).
     #[serde(default)]
     pub wall_seconds: Option<f64>,

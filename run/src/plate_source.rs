@@ -167,10 +167,6 @@ impl PlateSource {
             tolerance_px: self.photo_tolerance.unwrap_or(defaults.tolerance_px),
             scale,
         };
-        let traced = trace_file(photo, &opts).map_err(|e| match e {
-            TraceError::Unreadable { .. } => RunError::input(e),
-            _ => RunError::input(format!("{}: {e}", photo.display())),
-        })?;
         let overlay = self.photo_overlay.clone().unwrap_or_else(|| {
             let stem = photo
                 .file_stem()
@@ -178,6 +174,13 @@ impl PlateSource {
                 .unwrap_or_else(|| "photo".into());
             PathBuf::from(format!("traced-{stem}.png"))
         });
+        // Checked before tracing, so an overlay that cannot be written stops everything early.
+        agarium_core::output::check_writable(&overlay)
+            .map_err(|e| RunError::input(format!("photo overlay (--photo-overlay): {e}")))?;
+        let traced = trace_file(photo, &opts).map_err(|e| match e {
+            TraceError::Unreadable { .. } => RunError::input(e),
+            _ => RunError::input(format!("{}: {e}", photo.display())),
+        })?;
         write_overlay(photo, &traced, &overlay).map_err(RunError::input)?;
         Ok(traced.shapes())
     }

@@ -79,6 +79,8 @@ pub struct RunFile {
     pub time_unit: Option<String>,
     /// Checkpoint cadence in steps.
     pub checkpoint_every: Option<usize>,
+    /// Budget of time steps (see `--max-steps`).
+    pub max_steps: Option<u64>,
     /// Wall-clock checkpoint cadence in minutes.
     pub checkpoint_minutes: Option<f64>,
     /// Times at which pictures are drawn (default: every output time).

@@ -18,9 +18,10 @@ use agarium_scripting::{Model, Overrides};
 
 use crate::error::RunError;
 use crate::initial::InitialOverrides;
-use crate::manifest::{self, now_unix, sha256, Manifest, MeshFigures, CHECKPOINT};
+use crate::lock::FolderLock;
+use crate::manifest::{self, now_unix, sha256, Manifest, MeshFigures, CHECKPOINT, MANIFEST_FORMAT};
 use crate::outputs::{summary, write_pictures, write_state, History, CONSERVED_WARNING};
-use crate::spec::{first_picture, stops, RunSpec, Stop};
+use crate::spec::{first_picture, output_count, positive, stops, RunSpec, Stop, MAX_OUTPUTS};
 
 /// What a run tells its caller while it advances (progress bars, logs, sweep tables). Every
 /// method has an empty default.
@@ -128,6 +129,8 @@ pub struct Run {
     notes: Vec<String>,
     /// When the last checkpoint was written (for the wall-clock cadence).
     checkpointed: Instant,
+    /// The folder's lock, held until the run value is dropped.
+    _lock: FolderLock,
 }
 
 /// Compiles the model text with the overrides and initial conditions.
@@ -170,6 +173,69 @@ pub fn rayon_threads() -> usize {
     rayon::current_num_threads()
 }
 
+/// The fingerprints a checkpoint carries, as (tag, what it covers, hash of the manifest's
+/// values): a resume compares them with the manifest's, so an edited manifest or a checkpoint
+/// of another run is refused naming what differs.
+fn fingerprints(m: &Manifest) -> [(&'static str, &'static str, String); 4] {
+    let parameters = serde_json::json!({
+        "overrides": m.overrides,
+        "parameters": m.parameters,
+        "initial": m.initial,
+    });
+    let plate = serde_json::json!({
+        "plate": m.plate,
+        "mesh": m.mesh,
+        "mesh_figures": m.mesh_figures,
+    });
+    let solver = serde_json::to_value(&m.solver).unwrap_or_default();
+    [
+        ("model", "model text", m.model_sha256.clone()),
+        (
+            "parameters",
+            "parameters (overrides, values, initial conditions)",
+            sha256(&parameters.to_string()),
+        ),
+        (
+            "plate",
+            "plate and mesh settings",
+            sha256(&plate.to_string()),
+        ),
+        ("solver", "solver settings", sha256(&solver.to_string())),
+    ]
+}
+
+/// The settings of a manifest a resume relies on, checked as `run` checks them.
+fn check_manifest(m: &Manifest, path: &str) -> Result<(), RunError> {
+    let at = |e: RunError| RunError::input(format!("{path}: {e}"));
+    if m.format > MANIFEST_FORMAT {
+        return Err(RunError::input(format!(
+            "{path}: manifest format {} is newer than this agarium's ({MANIFEST_FORMAT}); resume with the agarium that wrote it ({})",
+            m.format, m.tool
+        )));
+    }
+    positive("end", m.end).map_err(at)?;
+    positive("every", m.every).map_err(at)?;
+    let count = output_count(m.end, m.every);
+    if count > MAX_OUTPUTS {
+        return Err(RunError::input(format!(
+            "{path}: every = {} gives {count} output files (at most {MAX_OUTPUTS})",
+            m.every
+        )));
+    }
+    for &t in &m.picture_times {
+        if !(t.is_finite() && (0.0..=m.end).contains(&t)) {
+            return Err(RunError::input(format!(
+                "{path}: picture time {t} is not between 0 and the end time {}",
+                m.end
+            )));
+        }
+    }
+    if let Some(minutes) = m.checkpoint_minutes {
+        positive("checkpoint_minutes", minutes).map_err(at)?;
+    }
+    Ok(())
+}
+
 impl Run {
     /// Checks `spec`, compiles its model, meshes its plate and prepares the folder `dir`
     /// (created if missing). Nothing is written into it before [`Run::advance`].
@@ -202,6 +268,7 @@ impl Run {
         let (mesh, mesh_figures) = mesh_of(&spec.plate, &options)?;
         spec.initial.check_coverage(&mesh)?;
         let manifest = Manifest {
+            format: MANIFEST_FORMAT,
             tool: format!("agarium {}", env!("CARGO_PKG_VERSION")),
             command_line: spec.command_line,
             model_file: spec.model_file,
@@ -241,6 +308,8 @@ impl Run {
             finished_unix: None,
             exit: "running".into(),
             checkpoint_time: None,
+            outputs_done: None,
+            resumed_unix: Vec::new(),
             wall_seconds: None,
             output_seconds: None,
         };
@@ -249,39 +318,88 @@ impl Run {
         std::fs::create_dir_all(dir).map_err(|e| {
             RunError::failure(format!("{}: cannot create folder: {e}", dir.display()))
         })?;
+        let lock = FolderLock::acquire(dir)?;
         Ok(Self::ready(
             manifest,
             dir,
             problem,
             mesh,
             sim,
-            false,
             Vec::new(),
+            lock,
         ))
     }
 
     /// Rebuilds the run of folder `dir` from its manifest and continues from its checkpoint.
+    /// Takes the folder's lock, removes the temporary files a killed run left, and refuses a
+    /// manifest or checkpoint that was edited, damaged or belongs to another run.
     pub fn resume(dir: &Path) -> Result<Self, RunError> {
-        let manifest = Manifest::read(dir)?;
+        // The manifest is read once before locking so that a folder that is no run's is
+        // refused without creating a lock file in it.
+        Manifest::read(dir)?;
+        let lock = FolderLock::acquire(dir)?;
+        lock.remove_leftovers()?;
+        let mut manifest = Manifest::read(dir)?;
         let manifest_path = dir.join(manifest::MANIFEST).display().to_string();
+        let checkpoint_path = dir.join(CHECKPOINT).display().to_string();
+        check_manifest(&manifest, &manifest_path)?;
         if sha256(&manifest.model_text) != manifest.model_sha256 {
             return Err(RunError::input(format!(
                 "{manifest_path}: the model text does not match its recorded hash"
             )));
         }
         let checkpoint = Checkpoint::read(&dir.join(CHECKPOINT)).map_err(RunError::input)?;
+        let differs: Vec<&str> = fingerprints(&manifest)
+            .into_iter()
+            .filter(|(name, _, hash)| checkpoint.tags().get(*name) != Some(hash))
+            .map(|(_, what, _)| what)
+            .collect();
+        if !differs.is_empty() {
+            return Err(RunError::input(format!(
+                "{checkpoint_path} does not belong to the run of {manifest_path}: the {} differ (an edited run.json, or a checkpoint of another run)",
+                differs.join(", ")
+            )));
+        }
+        if checkpoint.time() > manifest.end {
+            return Err(RunError::input(format!(
+                "{manifest_path}: end = {} is before the checkpoint's time {} (was run.json edited?)",
+                manifest.end,
+                checkpoint.time()
+            )));
+        }
         let initial = InitialOverrides::recorded(&manifest.initial, &manifest_path);
-        let (_, problem) = model_problem(
+        let (model, problem) = model_problem(
             &manifest.model_file,
             &manifest.model_text,
             &manifest.overrides,
             &initial,
         )?;
+        for p in &model.decl.params {
+            let recorded = manifest.parameters.iter().find(|(n, _)| *n == p.name);
+            if recorded.map(|r| r.1.to_bits()) != Some(p.value.to_bits()) {
+                return Err(RunError::input(format!(
+                    "{manifest_path}: parameter `{}` is recorded as {} but the recorded model text and overrides give {} (was run.json edited?)",
+                    p.name,
+                    recorded.map_or("nothing".to_string(), |r| r.1.to_string()),
+                    p.value
+                )));
+            }
+        }
+        if manifest.parameters.len() != model.decl.params.len() {
+            return Err(RunError::input(format!(
+                "{manifest_path}: {} parameters are recorded but the model declares {} (was run.json edited?)",
+                manifest.parameters.len(),
+                model.decl.params.len()
+            )));
+        }
         let (mesh, figures) = mesh_of(&manifest.plate, &manifest.mesh)?;
         if figures != manifest.mesh_figures {
-            return Err(RunError::failure(format!(
-                "the mesh rebuilt from {manifest_path} differs from the run's ({} vs {} nodes)",
-                figures.nodes, manifest.mesh_figures.nodes
+            return Err(RunError::input(format!(
+                "{manifest_path}: the mesh rebuilt from its plate and mesh settings differs from the run's ({} vs {} nodes, {} vs {} triangles)",
+                figures.nodes,
+                manifest.mesh_figures.nodes,
+                figures.triangles,
+                manifest.mesh_figures.triangles
             )));
         }
         let mut notes = Vec::new();
@@ -298,8 +416,10 @@ impl Run {
             manifest.solver.clone(),
             checkpoint,
         )
-        .map_err(RunError::input)?;
-        Ok(Self::ready(manifest, dir, problem, mesh, sim, true, notes))
+        .map_err(|e| RunError::input(format!("{checkpoint_path}: {e}")))?;
+        manifest.format = MANIFEST_FORMAT;
+        manifest.resumed_unix.push(now_unix());
+        Ok(Self::ready(manifest, dir, problem, mesh, sim, notes, lock))
     }
 
     /// A run of `manifest` ready to advance in `dir`.
@@ -309,9 +429,11 @@ impl Run {
         problem: Problem,
         mesh: Arc<Mesh>,
         sim: Simulation,
-        resumed: bool,
         notes: Vec<String>,
+        lock: FolderLock,
     ) -> Self {
+        // A resume records itself in the manifest before the run is ready.
+        let resumed = !manifest.resumed_unix.is_empty();
         Self {
             stops: stops(manifest.end, manifest.every, &manifest.picture_times),
             manifest,
@@ -322,6 +444,7 @@ impl Run {
             resumed,
             notes,
             checkpointed: Instant::now(),
+            _lock: lock,
         }
     }
 
@@ -342,8 +465,11 @@ impl Run {
 
     fn save_checkpoint(&mut self, csv: &DiagnosticsCsv) -> Result<(), RunError> {
         csv.save().map_err(RunError::failure)?;
-        self.sim
-            .checkpoint()
+        let mut checkpoint = self.sim.checkpoint();
+        for (name, _, hash) in fingerprints(&self.manifest) {
+            checkpoint = checkpoint.tag(name, hash);
+        }
+        checkpoint
             .write(&self.dir.join(CHECKPOINT))
             .map_err(RunError::failure)?;
         self.manifest.checkpoint_time = Some(self.sim.time());
@@ -375,6 +501,31 @@ impl Run {
         observer: &mut dyn Observer,
     ) -> Result<Finished, RunError> {
         let started = Instant::now();
+        match self.advance_files(cancel, observer) {
+            Ok((ended, start, output_seconds)) => {
+                self.finish(ended, &start, started, output_seconds)
+            }
+            Err(e) => {
+                // A file that could not be written ends the run; the manifest says so rather
+                // than `running` (best effort: it may be the manifest that cannot be written).
+                if self.dir.join(manifest::MANIFEST).exists() {
+                    self.manifest.exit = format!("error: {}", e.message);
+                    self.manifest.finished_unix = Some(now_unix());
+                    self.manifest.wall_seconds = Some(started.elapsed().as_secs_f64());
+                    let _ = self.manifest.write(&self.dir);
+                }
+                Err(e)
+            }
+        }
+    }
+
+    /// The step loop of [`Run::advance`] and the files it writes; returns how the run ended,
+    /// the diagnostics at t = 0 and the seconds spent on outputs.
+    fn advance_files(
+        &mut self,
+        cancel: &AtomicBool,
+        observer: &mut dyn Observer,
+    ) -> Result<(Ended, Diagnostics, f64), RunError> {
         let dir = self.dir.clone();
         let stem = self.manifest.stem.clone();
         let problem = self.problem.clone();
@@ -416,6 +567,7 @@ impl Run {
             if let Some(j) = first_picture(&self.manifest.picture_times) {
                 write_pictures(&dir, &stem, j, &self.sim, &start, &self.manifest)?;
             }
+            self.manifest.outputs_done = Some(0.0);
             self.save_checkpoint(&csv)?;
             output_seconds += clock.elapsed().as_secs_f64();
         }
@@ -437,9 +589,12 @@ impl Run {
         let every_seconds = self.manifest.checkpoint_minutes.map(|m| 60.0 * m);
         let cancelled = || cancel.load(Ordering::SeqCst);
         let stops = self.stops.clone();
+        let outputs_done = self.manifest.outputs_done;
         for stop in stops {
             let t = stop.t;
-            if t <= t_now {
+            // A checkpoint can land on an output time before its files are written (a step
+            // checkpoint, then a kill): such a stop is still to do.
+            if t < t_now || (t == t_now && outputs_done.is_some_and(|d| d >= t)) {
                 continue;
             }
             // Advance to the output time; a cadence checkpoint stops the advance, is written
@@ -496,19 +651,24 @@ impl Run {
                 csv.save().map_err(RunError::failure)?;
                 output_seconds += clock.elapsed().as_secs_f64();
                 if let Some(reason) = failure.take() {
-                    return self.finish(Ended::Failed(reason), &start, started, output_seconds);
+                    return Ok((Ended::Failed(reason), start, output_seconds));
                 }
                 outcome = match result {
                     Ok(o) => o,
                     Err(e) => {
                         let reason = e.to_string();
-                        return self.finish(Ended::Failed(reason), &start, started, output_seconds);
+                        return Ok((Ended::Failed(reason), start, output_seconds));
                     }
                 };
                 if outcome == Outcome::Stopped && wants_checkpoint && !cancelled() {
                     let clock = Instant::now();
                     self.save_checkpoint(&csv)?;
                     output_seconds += clock.elapsed().as_secs_f64();
+                    if self.sim.time() == t
+                        && agarium_core::fault::at("exit-after-output-time-checkpoint")
+                    {
+                        std::process::exit(86);
+                    }
                     continue;
                 }
                 break;
@@ -529,7 +689,7 @@ impl Run {
                 )?;
                 std::fs::remove_file(dir.join(format!("{stem}_interrupted.pvd"))).ok();
                 self.save_checkpoint(&csv)?;
-                return self.finish(Ended::Interrupted, &start, started, output_seconds);
+                return Ok((Ended::Interrupted, start, output_seconds));
             }
             let clock = Instant::now();
             let d = Diagnostics::evaluate(&problem, &mesh, self.sim.state_slice(), self.sim.time())
@@ -541,6 +701,7 @@ impl Run {
                 write_pictures(&dir, &stem, j, &self.sim, &d, &self.manifest)?;
             }
             history.plot(&dir, &stem)?;
+            self.manifest.outputs_done = Some(self.sim.time());
             self.save_checkpoint(&csv)?;
             output_seconds += clock.elapsed().as_secs_f64();
             observer.output(self.sim.time(), &self.sim.stats(), self.sim.next_dt());
@@ -552,7 +713,7 @@ impl Run {
             Outcome::BlowUp(report) => Ended::BlowUp(report),
             _ => Ended::Reached,
         };
-        self.finish(ended, &start, started, output_seconds)
+        Ok((ended, start, output_seconds))
     }
 
     /// Records how the run ended in the manifest and gathers the figures.

@@ -16,6 +16,11 @@ use crate::manifest::DEFAULT_PICTURE_WIDTH;
 /// Most output files a run may write (a guard against a mistyped interval).
 pub const MAX_OUTPUTS: usize = 100_000;
 
+/// Default budget of time steps a run's settings may imply (fixed steps of `dt`, or at least
+/// `end / dt_max` steps): every step keeps a row of the diagnostics table and of the plots'
+/// history in memory (about 0.3 KiB for four species), so 10 million steps are a few GiB.
+pub const DEFAULT_MAX_STEPS: u64 = 10_000_000;
+
 /// Everything a run needs before its model is compiled and its plate meshed.
 #[derive(Clone, Debug)]
 pub struct RunSpec {
@@ -61,6 +66,8 @@ pub struct RunSpec {
     pub checkpoint_minutes: Option<f64>,
     /// The command line that asked for the run (recorded in the manifest).
     pub command_line: Vec<String>,
+    /// Most time steps the settings may imply ([`DEFAULT_MAX_STEPS`] unless raised).
+    pub max_steps: u64,
 }
 
 impl RunSpec {
@@ -94,6 +101,7 @@ impl RunSpec {
             checkpoint_steps: 0,
             checkpoint_minutes: None,
             command_line: Vec::new(),
+            max_steps: DEFAULT_MAX_STEPS,
         }
     }
 
@@ -109,6 +117,7 @@ impl RunSpec {
                 self.every
             )));
         }
+        self.check_steps()?;
         for &t in &self.picture_times {
             if !(t.is_finite() && (0.0..=self.end).contains(&t)) {
                 return Err(RunError::input(format!(
@@ -135,6 +144,27 @@ impl RunSpec {
         }
         check_picture_scales(&self.pictures, &self.picture_ranges, &mut self.picture_log)?;
         self.plate.check_numbers().map_err(RunError::input)?;
+        Ok(())
+    }
+}
+
+impl RunSpec {
+    /// The fewest steps the solver settings allow to reach `end` (fixed steps of `dt`, or
+    /// steps of at most `dt_max`) against the step budget.
+    fn check_steps(&self) -> Result<(), RunError> {
+        let s = &self.solver;
+        let (what, dt) = match (s.adaptive, s.dt_initial, s.dt_max) {
+            (false, Some(dt), _) => ("fixed steps of dt", dt),
+            (_, _, Some(dt)) => ("steps of at most dt_max", dt),
+            _ => return Ok(()),
+        };
+        let steps = (self.end / dt).ceil();
+        if steps > self.max_steps as f64 {
+            return Err(RunError::input(format!(
+                "{what} = {dt} to end = {} take {steps:.0} steps, more than the budget of {} (each step keeps a row of diagnostics in memory); choose a longer step, or raise the budget with --max-steps (max_steps in a run file)",
+                self.end, self.max_steps
+            )));
+        }
         Ok(())
     }
 }

@@ -32,12 +32,66 @@ fn dir_of(path: &Path) -> &Path {
     }
 }
 
+/// The failure a test asked for with `fail-write:NAME` (see [`crate::fault`]).
+fn injected(path: &Path) -> Result<(), OutputError> {
+    if crate::fault::write_fails(path) {
+        return Err(io_err(
+            path,
+            "No space left on device (injected by AGARIUM_TEST_FAULT)",
+        ));
+    }
+    Ok(())
+}
+
+/// Checks that files can be created in folder `dir` before anything is written: it is a
+/// folder (or the nearest existing folder above it is, the rest being created later) and a
+/// file can be made there. Writability is probed by creating and removing a hidden temporary
+/// file, the one test that holds for every user (root included) and file system (read-only
+/// mounts, `/proc`).
+pub fn check_folder_writable(dir: &Path) -> Result<(), OutputError> {
+    let mut existing = dir;
+    while !existing.exists() {
+        existing = match existing.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p,
+            _ => Path::new("."),
+        };
+    }
+    if !existing.is_dir() {
+        return Err(io_err(
+            dir,
+            format!("{} is a file, not a folder", existing.display()),
+        ));
+    }
+    builder(".probe")
+        .tempfile_in(existing)
+        .map(drop)
+        .map_err(|e| {
+            io_err(
+                dir,
+                format!("cannot create files in {}: {e}", existing.display()),
+            )
+        })
+}
+
+/// Checks that `path` can be written by [`write_atomically`] before anything is: it is not a
+/// folder, and its folder passes [`check_folder_writable`].
+pub fn check_writable(path: &Path) -> Result<(), OutputError> {
+    if path.is_dir() {
+        return Err(io_err(path, "it is a folder"));
+    }
+    check_folder_writable(dir_of(path)).map_err(|e| match e {
+        OutputError::Io { reason, .. } => io_err(path, reason),
+        other => other,
+    })
+}
+
 /// Writes `path` through `fill`, which receives a writer to a temporary file in the same
 /// directory; the temporary file replaces `path` only when `fill` and the flush succeed.
 pub fn write_atomically(
     path: &Path,
     fill: impl FnOnce(&mut dyn Write) -> Result<(), OutputError>,
 ) -> Result<(), OutputError> {
+    injected(path)?;
     let mut tmp = builder(".part")
         .tempfile_in(dir_of(path))
         .map_err(|e| io_err(path, e))?;
@@ -57,6 +111,7 @@ pub fn write_atomically_via_path(
     path: &Path,
     fill: impl FnOnce(&Path) -> Result<(), OutputError>,
 ) -> Result<(), OutputError> {
+    injected(path)?;
     let suffix = path
         .extension()
         .map(|e| format!(".{}", e.to_string_lossy()))
@@ -91,6 +146,23 @@ mod tests {
         });
         assert!(err.is_err());
         assert_eq!(std::fs::read_to_string(&target).unwrap(), "first");
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 1);
+    }
+
+    #[test]
+    fn writability_is_checked_before_writing() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = dir.path().join("plain.txt");
+        std::fs::write(&file, "x").unwrap();
+        // A folder where a file is meant, and a file where a folder is meant.
+        let err = check_writable(dir.path()).unwrap_err().to_string();
+        assert!(err.contains("it is a folder"), "{err}");
+        let err = check_writable(&file.join("sub/x.png"))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("is a file, not a folder"), "{err}");
+        // Missing folders below a writable one are fine (created later), and no probe stays.
+        check_writable(&dir.path().join("new/deeper/x.png")).unwrap();
         assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 1);
     }
 

@@ -7,7 +7,9 @@ mod png;
 mod vtu;
 mod vtu_binary;
 
-pub use atomic::{write_atomically, write_atomically_via_path};
+pub use atomic::{
+    check_folder_writable, check_writable, write_atomically, write_atomically_via_path,
+};
 pub use picture::{
     snapshot_title, write_contact_sheet_png, write_field_png, write_phase_png, write_series_png,
     PhaseMark, PhaseOptions, PhasePoint, PlotOptions, Series, SheetTile, SnapshotOptions,

@@ -2,11 +2,18 @@
 //! stopped (the last accepted states, the proposed step, the order state of the variable-order
 //! BDF, counters, the blow-up monitor).
 //!
-//! File layout: the 8 bytes `AGARCKPT`, a little-endian u32 format version, a little-endian u64
-//! length, that many bytes of JSON metadata, then each saved state as its time followed by its
-//! species-major values, all little-endian f64. States are binary so that they round-trip bit
-//! for bit and stay compact (8 bytes per value).
+//! File layout (format 2): the 8 bytes `AGARCKPT`, a little-endian u32 format version, a
+//! little-endian u64 length, that many bytes of JSON metadata, then each saved state as its
+//! time followed by its species-major values, all little-endian f64, and last the CRC-32 of
+//! every byte before it (little-endian u32), so a flipped byte anywhere is caught before any
+//! value is used. States are binary so that they round-trip bit for bit and stay compact
+//! (8 bytes per value). The metadata carries the caller's fingerprints ([`Checkpoint::tags`]):
+//! hashes of what the states belong to, which the caller compares on resume.
+//!
+//! Format 1 (no checksum, no fingerprints) is refused with a message saying so: without them
+//! a resume could not tell a damaged or foreign checkpoint from a good one.
 
+use std::collections::BTreeMap;
 use std::io::Read;
 use std::path::Path;
 
@@ -18,7 +25,9 @@ use super::Stats;
 use crate::output::{write_atomically, OutputError};
 
 const MAGIC: &[u8; 8] = b"AGARCKPT";
-const VERSION: u32 = 1;
+const VERSION: u32 = 2;
+/// Bytes of the header: magic, version, metadata length.
+const HEADER: usize = 20;
 
 /// Why a checkpoint could not be read or used.
 #[derive(Debug, Error)]
@@ -64,6 +73,9 @@ pub(crate) struct Meta {
     /// Steps accepted at `order` since it last changed.
     #[serde(default)]
     pub order_steps: usize,
+    /// The caller's fingerprints of what the states belong to (name → hash).
+    #[serde(default)]
+    pub tags: BTreeMap<String, String>,
 }
 
 /// A saved simulation state.
@@ -89,6 +101,18 @@ impl Checkpoint {
         self.meta.nodes
     }
 
+    /// The fingerprints recorded with the states (name → hash), set by [`Checkpoint::tag`].
+    pub fn tags(&self) -> &BTreeMap<String, String> {
+        &self.meta.tags
+    }
+
+    /// Records a fingerprint `name` → `hash` of what the states belong to (a model, its
+    /// parameters, the mesh), for the caller to compare when it restores them.
+    pub fn tag(mut self, name: &str, hash: String) -> Self {
+        self.meta.tags.insert(name.to_string(), hash);
+        self
+    }
+
     /// Writes the checkpoint atomically (temporary file, then rename).
     pub fn write(&self, path: &Path) -> Result<(), CheckpointError> {
         let json = serde_json::to_vec(&self.meta).map_err(|e| CheckpointError::Format {
@@ -99,20 +123,22 @@ impl Checkpoint {
             path: path.to_path_buf(),
             reason: e.to_string(),
         };
-        write_atomically(path, |w| {
-            w.write_all(MAGIC).map_err(io)?;
-            w.write_all(&VERSION.to_le_bytes()).map_err(io)?;
-            w.write_all(&(json.len() as u64).to_le_bytes())
-                .map_err(io)?;
-            w.write_all(&json).map_err(io)?;
-            for (t, u) in self.meta.times.iter().zip(&self.states) {
-                w.write_all(&t.to_le_bytes()).map_err(io)?;
-                for v in u {
-                    w.write_all(&v.to_le_bytes()).map_err(io)?;
-                }
+        let per_state = self.states.first().map_or(0, Vec::len);
+        let mut bytes =
+            Vec::with_capacity(HEADER + json.len() + self.states.len() * 8 * (per_state + 1) + 4);
+        bytes.extend_from_slice(MAGIC);
+        bytes.extend_from_slice(&VERSION.to_le_bytes());
+        bytes.extend_from_slice(&(json.len() as u64).to_le_bytes());
+        bytes.extend_from_slice(&json);
+        for (t, u) in self.meta.times.iter().zip(&self.states) {
+            bytes.extend_from_slice(&t.to_le_bytes());
+            for v in u {
+                bytes.extend_from_slice(&v.to_le_bytes());
             }
-            Ok(())
-        })?;
+        }
+        let crc = crc32fast::hash(&bytes);
+        bytes.extend_from_slice(&crc.to_le_bytes());
+        write_atomically(path, |w| w.write_all(&bytes).map_err(io))?;
         Ok(())
     }
 
@@ -131,26 +157,47 @@ impl Checkpoint {
         std::fs::File::open(path)
             .and_then(|mut f| f.read_to_end(&mut bytes))
             .map_err(io)?;
-        if bytes.len() < 20 || &bytes[..8] != MAGIC {
+        if bytes.len() < HEADER || &bytes[..8] != MAGIC {
             return Err(format("missing header"));
         }
         let version = u32::from_le_bytes(bytes[8..12].try_into().map_err(|_| format("header"))?);
+        if version == 1 {
+            return Err(format(
+                "format version 1, written by an older agarium without a checksum or fingerprints; this agarium reads version 2 only: run again from the start",
+            ));
+        }
         if version != VERSION {
             return Err(format(&format!(
                 "format version {version}, expected {VERSION}"
             )));
         }
+        if bytes.len() < HEADER + 4 {
+            return Err(format("truncated"));
+        }
+        let body = bytes.len() - 4;
+        let stored = u32::from_le_bytes(bytes[body..].try_into().map_err(|_| format("checksum"))?);
+        let computed = crc32fast::hash(&bytes[..body]);
+        if stored != computed {
+            return Err(format(&format!(
+                "checksum mismatch (stored {stored:08x}, computed {computed:08x}): the file is damaged"
+            )));
+        }
+        let bytes = &bytes[..body];
         let len = u64::from_le_bytes(bytes[12..20].try_into().map_err(|_| format("header"))?);
         let len = usize::try_from(len).map_err(|_| format("metadata length"))?;
-        let json_end = 20usize.checked_add(len).filter(|&e| e <= bytes.len());
+        let json_end = HEADER.checked_add(len).filter(|&e| e <= bytes.len());
         let json_end = json_end.ok_or_else(|| format("truncated metadata"))?;
         let meta: Meta =
-            serde_json::from_slice(&bytes[20..json_end]).map_err(|e| format(&e.to_string()))?;
+            serde_json::from_slice(&bytes[HEADER..json_end]).map_err(|e| format(&e.to_string()))?;
         let per_state = meta.species.len() * meta.nodes;
         let mut floats = bytes[json_end..]
             .chunks_exact(8)
             .map(|c| f64::from_le_bytes([c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7]]));
-        let expected = meta.times.len() * (per_state + 1) * 8;
+        let expected = meta
+            .times
+            .len()
+            .checked_mul(per_state.saturating_add(1).saturating_mul(8))
+            .ok_or_else(|| format("state sizes overflow"))?;
         if bytes.len() - json_end != expected {
             return Err(format(&format!(
                 "{} bytes of states, expected {expected}",

@@ -299,6 +299,7 @@ impl Simulation {
                 t_start: self.t_start,
                 order: self.order,
                 order_steps: self.order_steps,
+                tags: Default::default(),
             },
             states: self.history.iter().map(|h| h.1.clone()).collect(),
         }
